@@ -1,0 +1,116 @@
+"""Instance-derived scaling shared by training and the exported policy.
+
+Networks see `state / obs_scale - 1` (mean demand as the unit, so one setting fits instances of
+any size), rewards are `-(cost - reward_offset) / reward_scale` (a reference cost as offset and
+unit keeps value targets near zero), and actions index the order sizes 0, q, 2q, ... up to an
+order bound taken from a high demand quantile (orders beyond it are never needed in steady state).
+"""
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+from typing import Any, Mapping
+
+import numpy as np
+
+from invbench.envs.errors import SpecError
+from invbench.envs.spec import InstanceSpec
+
+from .crn_eval import crn_cost
+from .settings import AUTO, CommonSettings
+
+
+@dataclass(frozen=True)
+class Scaling:
+    """How raw states, costs and action indices map to what the network sees and emits."""
+
+    obs_scale: float
+    obs_shift: float
+    reward_offset: float
+    reward_scale: float
+    case_pack: int
+    max_order_units: int
+
+    @property
+    def n_actions(self) -> int:
+        return self.max_order_units // self.case_pack + 1
+
+    @property
+    def order_sizes_units(self) -> np.ndarray:
+        return np.arange(self.n_actions, dtype=np.int64) * self.case_pack
+
+    def features(self, obs: np.ndarray) -> np.ndarray:
+        return (np.asarray(obs, dtype=np.float32) / np.float32(self.obs_scale) - np.float32(self.obs_shift)).astype(np.float32)
+
+    def reward(self, cost: np.ndarray) -> np.ndarray:
+        return -(np.asarray(cost, dtype=np.float64) - self.reward_offset) / self.reward_scale
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any]) -> "Scaling":
+        want = {"obs_scale", "obs_shift", "reward_offset", "reward_scale", "case_pack", "max_order_units"}
+        if not isinstance(d, Mapping) or set(d) != want:
+            raise SpecError(f"policy.json scaling: must have exactly the keys {', '.join(sorted(want))}")
+        try:
+            out = cls(obs_scale=float(d["obs_scale"]), obs_shift=float(d["obs_shift"]),
+                      reward_offset=float(d["reward_offset"]), reward_scale=float(d["reward_scale"]),
+                      case_pack=int(d["case_pack"]), max_order_units=int(d["max_order_units"]))
+        except (TypeError, ValueError):
+            raise SpecError("policy.json scaling: values must be numbers") from None
+        if not (np.isfinite(out.obs_scale) and out.obs_scale > 0 and out.case_pack >= 1
+                and out.max_order_units >= out.case_pack and out.max_order_units % out.case_pack == 0):
+            raise SpecError("policy.json scaling: obs_scale must be > 0 and max_order_units a positive case-pack multiple")
+        return out
+
+
+def demand_quantile(spec: InstanceSpec, q: float, periods: int = 1) -> int:
+    """Smallest k with P(demand over `periods` periods <= k) >= q, from the exact pmf."""
+    cdf = np.cumsum(spec.demand.lead_time_pmf(periods).normalized())
+    return int(min(np.searchsorted(cdf, q, side="left"), len(cdf) - 1))
+
+
+def order_bound(spec: InstanceSpec, settings: CommonSettings) -> int:
+    """The agent's largest order in units: set, or the demand quantile rounded up to a case pack."""
+    q = spec.case_pack
+    if settings.max_order_units != AUTO:
+        units = int(settings.max_order_units)
+        if units % q:
+            raise SpecError(f"agent.max_order_units: must be a multiple of the case pack {q}, got {units}")
+        if units > spec.order_cap_units:
+            raise SpecError(f"agent.max_order_units: must be <= the instance's order cap {spec.order_cap_units}, got {units}")
+        return units
+    k = max(demand_quantile(spec, settings.order_quantile), 1)
+    units = -(-k // q) * q
+    return int(min(units, spec.order_cap_units))
+
+
+def reference_cost(spec: InstanceSpec, max_units: int, seed: int = 0) -> float:
+    """Cost of a rough order-up-to rule (critical-ratio quantile of lead-time demand), by CRN.
+
+    Only a unit and an offset for rewards, so a crude rule is enough; it never enters results.
+    """
+    h, p = spec.holding_cost, spec.shortage_cost
+    ratio = p / (p + h) if p + h > 0 else 0.5
+    level = demand_quantile(spec, min(max(ratio, 0.5), 0.999), spec.lead_time + 1)
+    q = spec.case_pack
+
+    def act(state: np.ndarray) -> np.ndarray:
+        want = np.clip(level - state.sum(axis=1), 0, max_units)
+        return (want // q) * q
+
+    est = crn_cost(spec, act, replications=16, periods=400, warmup=50, seed=seed)
+    return max(est.cost, 1e-6)
+
+
+def scaling_for(spec: InstanceSpec, settings: CommonSettings) -> Scaling:
+    """Resolve every `auto` scaling setting from the instance."""
+    units = order_bound(spec, settings)
+    obs_scale = float(spec.demand.mean) if settings.obs_scale == AUTO else float(settings.obs_scale)
+    obs_scale = max(obs_scale, 1e-6)
+    need_ref = settings.reward_scale == AUTO or settings.reward_offset == AUTO
+    ref = reference_cost(spec, units) if need_ref else 1.0
+    scale = ref if settings.reward_scale == AUTO else float(settings.reward_scale)
+    offset = ref if settings.reward_offset == AUTO else float(settings.reward_offset)
+    return Scaling(obs_scale=obs_scale, obs_shift=1.0, reward_offset=float(offset), reward_scale=float(scale),
+                   case_pack=spec.case_pack, max_order_units=units)

@@ -1,0 +1,151 @@
+"""Exact optimum of an instance: build the finite MDP, iterate to certified bounds, verify bounds.
+
+`solve(spec)` returns a SolveResult whose `lower <= optimum <= upper` gap is below `rel_tol`
+(relative) for the average cost; the policy is a TablePolicy usable as any other policy.
+"""
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from scipy.sparse.csgraph import breadth_first_order
+
+from invbench.envs.errors import SpecError
+from invbench.envs.spec import InstanceSpec, load_spec
+
+from .iteration import (IterationOutcome, discounted_policy_iteration, discounted_value_iteration,
+                        relative_value_iteration)
+from .mdp import FiniteMDP, build_mdp, check_budget, estimate_size
+from .state_space import Bounds, initial_bounds
+from .table_policy import TablePolicy
+
+DEFAULT_MAX_STATES = 3_000_000
+DEFAULT_MAX_MEMORY_MB = 4096
+MAX_WIDENINGS = 12
+METHODS = ("auto", "rvi", "lp", "value_iteration", "policy_iteration")
+
+
+@dataclass
+class SolveResult:
+    cost: float
+    lower: float
+    upper: float
+    policy: TablePolicy
+    iterations: int
+    seconds: float
+    states: int
+    pairs: int
+    truncation_mass: float
+    method: str
+    criterion: str  # "average" or "discounted"
+    representation: str
+    bounds: Bounds
+    widenings: int
+    converged: bool
+    notes: list[str] = field(default_factory=list)
+    mdp: FiniteMDP | None = field(default=None, repr=False)
+    values: np.ndarray | None = field(default=None, repr=False)
+
+    @property
+    def gap(self) -> float:
+        """Certified relative gap between the bounds."""
+        return (self.upper - self.lower) / max(abs(self.lower), 1e-12)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "cost": self.cost, "lower": self.lower, "upper": self.upper, "certified_gap": self.gap,
+            "iterations": self.iterations, "seconds": self.seconds, "states": self.states,
+            "pairs": self.pairs, "truncation_mass": self.truncation_mass, "method": self.method,
+            "criterion": self.criterion, "representation": self.representation,
+            "bounds": {"upper": self.bounds.upper, "lower": self.bounds.lower},
+            "widenings": self.widenings, "converged": self.converged, "notes": list(self.notes),
+        }
+
+
+def reachable_states(mdp: FiniteMDP, choice: np.ndarray) -> np.ndarray:
+    """States reachable from the start state when the pairs `choice` are used."""
+    P = mdp.P[choice]
+    return np.sort(breadth_first_order(P, mdp.start, directed=True, return_predecessors=False))
+
+
+def _binding(spec: InstanceSpec, mdp: FiniteMDP, choice: np.ndarray) -> tuple[bool, bool]:
+    reach = reachable_states(mdp, choice)
+    ch = choice[reach]
+    orders = mdp.pair_order[ch]
+    up = bool(np.any(mdp.at_upper[ch] & (orders > 0) & (orders + spec.case_pack <= spec.order_cap_units)))
+    down = bool(np.any(mdp.clip_mass[ch] > 1e-12))
+    return up, down
+
+
+def _run(mdp: FiniteMDP, spec: InstanceSpec, method: str, rel_tol: float, on_iter: Any) -> IterationOutcome:
+    if spec.discount < 1.0:
+        if method == "policy_iteration":
+            return discounted_policy_iteration(mdp, spec.discount)
+        return discounted_value_iteration(mdp, spec.discount, rel_tol, on_iter=on_iter)
+    if method == "lp":
+        from .lp import solve_average_lp
+        return solve_average_lp(mdp)
+    return relative_value_iteration(mdp, rel_tol, on_iter=on_iter)
+
+
+def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states: int = DEFAULT_MAX_STATES,
+          max_memory_mb: float = DEFAULT_MAX_MEMORY_MB, full_pipeline: bool = False,
+          bounds: Bounds | None = None, progress: bool = False) -> SolveResult:
+    """Certified optimum of `spec` (InstanceSpec, dict or TOML path).
+
+    method: "auto" (RVI for average cost, value iteration when discounted), "rvi", "lp"
+    (HiGHS, tiny instances), "value_iteration" or "policy_iteration" (discounted only).
+    full_pipeline: for backorders, solve on the full pipeline state instead of the inventory
+    position (for checking that reduction; far larger).
+    """
+    spec = load_spec(spec)
+    if method not in METHODS:
+        raise SpecError(f"method: must be one of {', '.join(METHODS)}, got {method!r}")
+    if not (0 < rel_tol < 1):
+        raise SpecError(f"rel_tol: must be in (0, 1), got {rel_tol}")
+    if spec.discount < 1 and method in ("rvi", "lp"):
+        raise SpecError(f"method: {method} is for the average-cost criterion (discount = 1)")
+    if spec.discount == 1 and method in ("value_iteration", "policy_iteration"):
+        raise SpecError(f"method: {method} is for the discounted criterion (discount < 1)")
+    t0 = time.perf_counter()
+    b = bounds or initial_bounds(spec)
+    notes: list[str] = []
+    total_iter = 0
+    bar = None
+    for widen in range(MAX_WIDENINGS + 1):
+        est = estimate_size(spec, b, full_pipeline)
+        check_budget(est, max_states, int(max_memory_mb * 2**20))
+        mdp = build_mdp(spec, b, full_pipeline=full_pipeline)
+        on_iter = None
+        if progress:
+            from tqdm import tqdm
+            bar = tqdm(desc=f"solve ({mdp.n_states:,} states)", unit="it", leave=False)
+
+            def on_iter(it: int, lo: float, hi: float, _bar: Any = bar) -> None:
+                _bar.update(1)
+                if it % 10 == 0:
+                    _bar.set_postfix(gap=f"{(hi - lo) / max(abs(lo), 1e-12):.1e}")
+        out = _run(mdp, spec, method, rel_tol, on_iter)
+        if bar is not None:
+            bar.close()
+        total_iter += out.iterations
+        up, down = _binding(spec, mdp, out.choice)
+        if not (up or down):
+            break
+        b = b.widened(spec, up, down)
+    else:
+        notes.append(f"state-space bounds still bind after {MAX_WIDENINGS} widenings; optimum may be cut off")
+    orders = mdp.pair_order[out.choice]
+    if not out.converged:
+        notes.append("iteration limit reached before the bounds met the tolerance")
+    reach = reachable_states(mdp, out.choice)
+    if np.any(orders[reach] == spec.order_cap_units) and spec.order_cap_units < b.upper:
+        notes.append(f"the order cap of {spec.order_cap_units} units is reached in reachable states")
+    policy = TablePolicy(spec, mdp.representation, mdp.index, orders, b)
+    used = method if method != "auto" else ("rvi" if spec.discount == 1 else "value_iteration")
+    return SolveResult(out.value, out.lower, out.upper, policy, total_iter, time.perf_counter() - t0,
+                       mdp.n_states, mdp.n_pairs, mdp.truncation_mass, used,
+                       "average" if spec.discount == 1 else "discounted", mdp.representation, b, widen,
+                       out.converged, notes, mdp, out.h)

@@ -1,0 +1,28 @@
+"""Expected holding + shortage cost charged at the arrival of an order, for the backorder model.
+
+With backorders, the end-of-period net inventory in period t + L is y - D[t..t+L], where y is
+the inventory position after ordering in t. So the cost of period t + L is a function G(y) of y
+alone. G is computed by running the model's own step function (with L = 0 and no order) on
+state y against the (L+1)-period demand pmf, so no second copy of the cost rules exists.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from invbench.envs.dynamics import step_fn
+from invbench.envs.spec import InstanceSpec
+
+
+def lead_time_cost(spec: InstanceSpec, levels: np.ndarray) -> np.ndarray:
+    """G(y) for each inventory position y in `levels` (backorder model), per period."""
+    if spec.model != "backorder":
+        raise ValueError("lead_time_cost: defined for the backorder model")
+    levels = np.asarray(levels, dtype=np.int64).reshape(-1)
+    pmf = spec.demand.lead_time_pmf(spec.lead_time + 1).normalized()
+    step = step_fn(spec.with_(lead_time=0, unit_order_cost=0.0, fixed_order_cost=0.0))
+    d = np.arange(len(pmf), dtype=np.int64)
+    y = np.repeat(levels, len(d))
+    dd = np.tile(d, len(levels))
+    _, parts = step(y[:, None], np.zeros_like(y), dd)
+    cost = (parts.holding + parts.shortage).reshape(len(levels), len(d))
+    return cost @ pmf

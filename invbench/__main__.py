@@ -1,0 +1,5 @@
+import sys
+
+from invbench.cli import main
+
+sys.exit(main())

@@ -1,0 +1,54 @@
+"""Command line: `invbench solve|evaluate|policies|demo|...`.
+
+Bad input of any kind ends with one line on stderr naming the field and exit code 2. Commands
+from other parts (training, benchmarks) plug in through `PLUGIN_MODULES`: each module has
+`register(subparsers)` that adds its parsers and sets `func` on them.
+"""
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+from typing import Sequence
+
+from invbench.envs.errors import BudgetError, SpecError
+
+PLUGIN_MODULES = ("invbench.cli_core", "invbench.agents.cli", "invbench.experiments.cli")
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # one line, exit 2, as for every other bad input
+        sys.stderr.write(f"{self.prog}: error: {message}\n")
+        sys.exit(2)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="invbench", description="Inventory-control bench: exact optima, classical policies, RL agents.")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+    for mod in PLUGIN_MODULES:
+        try:
+            module = importlib.import_module(mod)
+        except ModuleNotFoundError as e:
+            if e.name == mod:  # that part is not there; its commands are simply absent
+                continue
+            raise
+        module.register(sub)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.func(args) or 0)
+    except (SpecError, BudgetError) as e:
+        sys.stderr.write(f"invbench: error: {e}\n")
+        return 2
+    except KeyboardInterrupt:
+        sys.stderr.write("invbench: interrupted\n")
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
