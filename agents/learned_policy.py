@@ -1,0 +1,69 @@
+"""A trained network as a first-class policy: `act(obs[B, n]) -> orders[B]` in units, greedy.
+
+Whatever trained it, the policy is a `PolicyNet` plus the instance's `Scaling`, so evaluators,
+the exact policy evaluation and the comparison with the optimum treat it like any other policy.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any, Mapping
+
+import numpy as np
+import torch
+
+from invbench.baselines.policy import PolicyBase
+from invbench.envs.spec import InstanceSpec
+
+from .network import PolicyNet
+from .scaling import Scaling
+
+#: Rows per forward pass, so the exact evaluator can query every state without a memory spike.
+CHUNK = 65_536
+
+
+class LearnedPolicy(PolicyBase):
+    """Greedy policy of a trained network: the order size with the highest score."""
+
+    name = "learned"
+
+    def __init__(self, spec: InstanceSpec, scaling: Scaling, net: PolicyNet, agent: str = "",
+                 meta: Mapping[str, Any] | None = None) -> None:
+        self.spec = spec
+        self.scaling = scaling
+        self.net = net.eval()
+        self.agent = agent
+        self.meta: dict[str, Any] = dict(meta or {})
+        self._sizes = scaling.order_sizes_units
+
+    def action_index(self, obs: np.ndarray) -> np.ndarray:
+        """Index of the chosen order size for each row of `obs`."""
+        obs = np.asarray(obs)
+        if obs.ndim == 1:
+            obs = obs.reshape(1, -1)
+        if obs.shape[1] != self.spec.state_dim:
+            raise ValueError(f"policy: observations must have {self.spec.state_dim} columns, got {obs.shape[1]}")
+        out = np.empty(obs.shape[0], dtype=np.int64)
+        with torch.no_grad():
+            for i in range(0, obs.shape[0], CHUNK):
+                x = torch.from_numpy(self.scaling.features(obs[i:i + CHUNK]))
+                out[i:i + CHUNK] = self.net(x).argmax(dim=1).numpy()
+        return out
+
+    def act(self, obs: np.ndarray) -> np.ndarray:
+        return self._sizes[self.action_index(obs)]
+
+    def params(self) -> dict[str, Any]:
+        return {"agent": self.agent, "hidden": list(self.net.arch["hidden"]),
+                "max_order_units": self.scaling.max_order_units}
+
+    def describe(self) -> str:
+        return f"learned({self.agent})" if self.agent else "learned"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"name": self.name, "params": self.params(), "architecture": dict(self.net.arch),
+                "scaling": self.scaling.to_dict()}
+
+    def save(self, directory: str | Path, measured: Mapping[str, Any] | None = None) -> Path:
+        """Export to `directory` (weights.safetensors + policy.json); returns the directory."""
+        from .export import save_policy
+        return save_policy(self, directory, measured=measured)
