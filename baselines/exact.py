@@ -47,6 +47,7 @@ class SolveResult:
     notes: list[str] = field(default_factory=list)
     mdp: FiniteMDP | None = field(default=None, repr=False)
     values: np.ndarray | None = field(default=None, repr=False)
+    choice: np.ndarray | None = field(default=None, repr=False)  # chosen pair per state
 
     @property
     def gap(self) -> float:
@@ -148,4 +149,4 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     return SolveResult(out.value, out.lower, out.upper, policy, total_iter, time.perf_counter() - t0,
                        mdp.n_states, mdp.n_pairs, mdp.truncation_mass, used,
                        "average" if spec.discount == 1 else "discounted", mdp.representation, b, widen,
-                       out.converged, notes, mdp, out.h)
+                       out.converged, notes, mdp, out.h, out.choice)

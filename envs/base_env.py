@@ -37,7 +37,7 @@ def resolve_spec(model: str, spec: Any = None, **overrides: Any) -> InstanceSpec
 class InventoryEnv(gym.Env):
     """Base class; see `LostSalesEnv` and `BackorderEnv` for the documented interface."""
 
-    metadata = {"render_modes": ["ansi"]}
+    metadata = {"render_modes": ["ansi"], "render_fps": 4}
     model: str = ""
 
     def __init__(self, spec: Any = None, episode_length: int = DEFAULT_EPISODE_LENGTH,

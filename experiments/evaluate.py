@@ -1,0 +1,86 @@
+"""Evaluate a policy on an instance: exactly when the state space allows, else by simulation.
+
+The result says which was used, and carries the gap to the optimum when one is given.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+from invbench.baselines.policy import as_policy
+from invbench.baselines.policy_eval import DEFAULT_MAX_STATES, evaluate_exact
+from invbench.envs.errors import BudgetError, SpecError
+from invbench.envs.spec import load_spec
+
+from .simulate import simulate
+
+METHODS = ("auto", "exact", "simulate")
+
+
+@dataclass
+class Evaluation:
+    policy: str
+    cost: float
+    ci_halfwidth: float
+    holding: float
+    shortage: float
+    ordering: float
+    method: str  # "exact" or "simulated"
+    criterion: str
+    seconds: float
+    optimum: float | None = None
+    states: int | None = None
+    note: str = ""
+    params: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def gap(self) -> float | None:
+        """Relative excess cost over the optimum, (cost - optimum) / optimum."""
+        if self.optimum is None or self.optimum == 0:
+            return None
+        return (self.cost - self.optimum) / self.optimum
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"policy": self.policy, "params": dict(self.params), "cost": self.cost,
+                "ci_halfwidth": self.ci_halfwidth, "gap": self.gap, "optimum": self.optimum,
+                "holding": self.holding, "shortage": self.shortage, "ordering": self.ordering,
+                "method": self.method, "criterion": self.criterion, "states": self.states,
+                "seconds": self.seconds, "note": self.note}
+
+
+def _optimum_value(optimum: Any) -> float | None:
+    if optimum is None:
+        return None
+    return float(getattr(optimum, "cost", optimum))
+
+
+def evaluate(spec: Any, policy: Any, *, method: str = "auto", optimum: Any = None, replications: int = 100,
+             periods: int = 2000, warmup: int = 200, seed: int = 0, max_states: int = DEFAULT_MAX_STATES,
+             progress: bool = False) -> Evaluation:
+    """Cost of `policy` (a Policy, or any callable obs batch -> orders) on `spec`.
+
+    method: "exact", "simulate", or "auto" (exact, falling back to simulation when the policy's
+    reachable state space is over `max_states` or it is unstable). `optimum`: a number or a
+    SolveResult, for the gap.
+    """
+    spec = load_spec(spec)
+    if method not in METHODS:
+        raise SpecError(f"method: must be one of {', '.join(METHODS)}, got {method!r}")
+    pol = as_policy(policy)
+    name = pol.describe() if hasattr(pol, "describe") else type(pol).__name__
+    params = pol.params() if hasattr(pol, "params") else {}
+    opt = _optimum_value(optimum)
+    note = ""
+    if method in ("auto", "exact"):
+        try:
+            ex = evaluate_exact(spec, pol, max_states=max_states)
+            return Evaluation(name, ex.cost, 0.0, ex.holding, ex.shortage, ex.ordering, "exact", ex.criterion,
+                              ex.seconds, opt, ex.states, "", params)
+        except BudgetError as e:
+            if method == "exact":
+                raise
+            note = f"simulated because {e}"
+    sim = simulate(spec, pol, replications=replications, periods=periods, warmup=warmup, seed=seed,
+                   progress=progress)
+    return Evaluation(name, sim.cost, sim.ci_halfwidth, sim.holding, sim.shortage, sim.ordering, "simulated",
+                      sim.criterion, sim.seconds, opt, None, note, params)
