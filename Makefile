@@ -2,7 +2,8 @@
 PYTHON ?= python3
 VENV := .venv
 PY := $(VENV)/bin/python
-STAMP := $(VENV)/.installed-stamp
+STAMP := $(VENV)/.stamp-base
+TEST_STAMP := $(VENV)/.stamp-test
 
 .PHONY: demo test setup bench perf clean
 
@@ -17,11 +18,21 @@ $(STAMP): pyproject.toml
 	$(PY) -m pip install --quiet -e ".[dev]"
 	touch $(STAMP)
 
+# The test suite also needs the optional cluster backend (ray).
+$(TEST_STAMP): $(STAMP)
+	$(PY) -m pip install --quiet -e ".[dev,cluster]"
+	touch $(TEST_STAMP)
+
 demo: $(STAMP)
 	$(PY) -m invbench demo
 
-test: $(STAMP)
+test: $(TEST_STAMP)
 	$(PY) -m pytest -n 2 -q
+
+perf: $(STAMP)
+	$(PY) experiments/perf/dp_grid.py
+	$(PY) experiments/perf/sim_throughput.py
+	$(PY) experiments/perf/scaling.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info

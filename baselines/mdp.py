@@ -131,6 +131,19 @@ def check_budget(est: SizeEstimate, max_states: int, max_bytes: int) -> None:
             f"{max_bytes / 2**20:,.0f} MiB (raise max_states / max_memory_mb, or shrink the instance)")
 
 
+def enumerate_pairs(spec: InstanceSpec, states: np.ndarray, bounds: Bounds) -> tuple[np.ndarray, ...]:
+    """All (state, order) pairs keeping the position after ordering <= bounds.upper, state-major."""
+    position = states.sum(axis=1)
+    sizes = spec.order_sizes_units
+    room = bounds.upper - position
+    n_orders = np.maximum(np.searchsorted(sizes, room, side="right"), 1)  # ordering nothing is always allowed
+    pair_start = np.concatenate([[0], np.cumsum(n_orders)]).astype(np.int64)
+    pair_state = np.repeat(np.arange(len(states)), n_orders)
+    pair_order = sizes[np.arange(pair_start[-1]) - pair_start[pair_state]]
+    at_upper = (position[pair_state] + pair_order) == bounds.upper
+    return pair_state, pair_order, pair_start, at_upper
+
+
 def build_mdp(spec: InstanceSpec, bounds: Bounds, *, full_pipeline: bool = False) -> FiniteMDP:
     """Step every (state, order, demand) through the model and collect the weighted results."""
     rep = _representation(spec, full_pipeline)
@@ -141,14 +154,7 @@ def build_mdp(spec: InstanceSpec, bounds: Bounds, *, full_pipeline: bool = False
     states = index.states
     position = states.sum(axis=1)
 
-    sizes = spec.order_sizes_units
-    room = bounds.upper - position  # orders keep the position after ordering <= upper
-    n_orders = np.searchsorted(sizes, room, side="right")
-    n_orders = np.maximum(n_orders, 1)  # ordering nothing is always allowed
-    pair_start = np.concatenate([[0], np.cumsum(n_orders)]).astype(np.int64)
-    pair_state = np.repeat(np.arange(len(states)), n_orders)
-    pair_order = sizes[np.arange(pair_start[-1]) - pair_start[pair_state]]
-    at_upper = (position[pair_state] + pair_order) == bounds.upper
+    pair_state, pair_order, pair_start, at_upper = enumerate_pairs(spec, states, bounds)
 
     pmf_obj = spec.demand.pmf()
     pmf = pmf_obj.normalized()

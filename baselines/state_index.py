@@ -1,7 +1,9 @@
 """Integer keys for state vectors, so sets of states can be sorted, merged and looked up in numpy.
 
 Coordinate 0 (stock level, may be negative under backorders) gets an offset; pipeline
-coordinates are orders, hence in [0, order cap]. Keys are a mixed-radix code in int64.
+coordinates are orders, hence in [0, order cap]. Keys are a mixed-radix code in int64 with the
+stock level as the *least* significant digit: in a sorted index, states that differ only in
+stock level are then neighbours, which the fast solver path relies on.
 """
 from __future__ import annotations
 
@@ -21,7 +23,7 @@ class StateCodec:
             raise BudgetError(f"state space: {n - 1} pipeline slots with orders up to {pipeline_max} "
                               "are too many to index")
         # The stock level gets what is left of 62 bits.
-        self.offset = int(min(2**30, (2**61) // tail))
+        self.offset = int(min(2**30, (2**61) // tail // 2))
         self.tail = tail
 
     def encode(self, states: np.ndarray) -> np.ndarray:
@@ -31,13 +33,13 @@ class StateCodec:
         key = np.zeros(len(s), dtype=np.int64)
         for i in range(self.n - 1, 0, -1):
             key = key * self.pipe_radix + s[:, i]
-        return (s[:, 0] + self.offset) * self.tail + key
+        return key * (2 * self.offset) + (s[:, 0] + self.offset)
 
     def decode(self, keys: np.ndarray) -> np.ndarray:
         keys = np.asarray(keys, dtype=np.int64)
         out = np.empty((len(keys), self.n), dtype=np.int64)
-        out[:, 0] = keys // self.tail - self.offset
-        rest = keys % self.tail
+        out[:, 0] = keys % (2 * self.offset) - self.offset
+        rest = keys // (2 * self.offset)
         for i in range(1, self.n):
             out[:, i] = rest % self.pipe_radix
             rest //= self.pipe_radix
