@@ -25,6 +25,8 @@ _CHUNK_ROWS = 4_000_000
 #: Bytes per stored transition (float64 value + int32 column) plus per-pair overhead.
 _BYTES_PER_NNZ = 12
 _BYTES_PER_PAIR = 64
+#: Peak bytes per stored transition while building and iterating (measured, experiments/perf/scaling.py).
+_PEAK_BYTES_PER_NNZ = 80
 
 REPRESENTATIONS = ("lost_sales", "backorder_position", "backorder_full")
 
@@ -105,11 +107,17 @@ def estimate_size(spec: InstanceSpec, bounds: Bounds, full_pipeline: bool = Fals
     support = int(np.count_nonzero(spec.demand.pmf().probs))
     if rep == "lost_sales":
         n = spec.state_dim
-        states = count_lost_sales_states(n, bounds.upper)
-        # pairs: states of dimension n+1 (state plus order) with sum <= upper, thinned by case pack
-        pairs = count_lost_sales_states(n + 1, bounds.upper) // q + states
-        per_pair = min(support, bounds.upper + 1)
-    elif rep == "backorder_position":
+        B = bounds.upper
+        states = count_lost_sales_states(n, B)
+        # pairs with stock v: (pipeline, order) combinations with sum <= B - v, thinned by the
+        # case pack; each has min(v, max demand) + 1 distinct next states.
+        dmax = spec.demand.pmf().support_max
+        per_v = [count_lost_sales_states(n, B - v) for v in range(B + 1)]
+        pairs = sum(per_v) // q + states
+        transitions = sum(c * (min(v, dmax) + 1) for v, c in enumerate(per_v)) // q + states
+        # measured peak of the fast build: about 80 bytes per stored transition
+        return SizeEstimate(states, pairs, transitions, transitions * _PEAK_BYTES_PER_NNZ)
+    if rep == "backorder_position":
         span = bounds.upper - bounds.lower + 1
         states = span
         pairs = sum(min(cap, bounds.upper - y) // q + 1 for y in range(bounds.lower, bounds.upper + 1))
