@@ -69,8 +69,16 @@ class ExactEvaluation:
 
 
 def _stock_limit(spec: InstanceSpec) -> int:
-    """Beyond this stock level a policy is taken to be unstable (stock or backlog runs away)."""
-    return int(max(2000, 50 * (spec.lead_time + 1) * (spec.demand.mean + spec.order_cap_units)))
+    """Beyond this stock level a policy's reachable set is taken to be unbounded.
+
+    Four times the width of the solver's first state-space guess plus the order cap: no
+    sensible policy keeps stock (or backlog) that far out, and policies that drift there with
+    positive probability (a constant order below mean demand lets stock creep up through runs
+    of low demand) have an infinite reachable set that no finite chain holds.
+    """
+    from .state_space import initial_bounds
+    b = initial_bounds(spec)
+    return int(4 * (b.upper - b.lower + spec.order_cap_units) + 100)
 
 
 def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
@@ -106,8 +114,8 @@ def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
             to_keys.append(codec.encode(nxt))
             probs.append(w)
         if np.abs(nxt[:, 0]).max(initial=0) > limit:
-            raise BudgetError(f"exact evaluation: stock level passed +-{limit:,}; the policy does not look "
-                              "stable (stock or backlog keeps growing) — use simulation")
+            raise BudgetError(f"exact evaluation: the policy can reach stock levels beyond +-{limit:,} (its "
+                              "reachable states are unbounded or it is unstable) — use simulation")
         cand = np.unique(to_keys_since(to_keys, frontier))
         new = cand[~np.isin(cand, known, assume_unique=True)]
         total += len(new)

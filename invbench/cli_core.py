@@ -49,7 +49,7 @@ def _solve(args: argparse.Namespace) -> int:
     return 0
 
 
-def _load_any_policy(spec: Any, name: str, params: dict[str, Any]) -> Any:
+def _load_any_policy(spec: Any, name: str, params: dict[str, Any], progress: bool = False) -> Any:
     if Path(name).is_dir():
         try:
             from invbench.agents import load_policy
@@ -57,21 +57,22 @@ def _load_any_policy(spec: Any, name: str, params: dict[str, Any]) -> Any:
             raise SpecError(f"--policy: {name} is a directory but the agents part is not installed") from None
         return load_policy(name, spec=spec)
     from invbench.baselines.policies.registry import make_policy
-    return make_policy(spec, name, params or None)
+    return make_policy(spec, name, params or None, progress=progress)
 
 
 def _evaluate(args: argparse.Namespace) -> int:
     from invbench.api import evaluate, load_spec
     spec = load_spec(args.spec)
     params = _parse_params(args.param)
-    policy = _load_any_policy(spec, args.policy, params)
+    tty = sys.stderr.isatty() and not args.json
+    policy = _load_any_policy(spec, args.policy, params, progress=tty)
     method = "exact" if args.exact else "simulate" if args.simulate else "auto"
     opt = None
     if args.gap:
         from invbench.api import solve
-        opt = solve(spec)
+        opt = solve(spec, progress=tty)
     ev = evaluate(spec, policy, method=method, optimum=opt, replications=args.replications,
-                  periods=args.periods, warmup=args.warmup, seed=args.seed)
+                  periods=args.periods, warmup=args.warmup, seed=args.seed, progress=tty)
     if args.json:
         print(json.dumps(ev.to_dict(), indent=2))
         return 0
