@@ -58,11 +58,12 @@ def relative_value_iteration(mdp: FiniteMDP, rel_tol: float = 1e-6, max_iter: in
     upper = np.inf
     it = 0
     converged = False
-    choice = np.zeros(mdp.n_states, dtype=np.int64)
+    starts = mdp.pair_start[:-1]
+    q = c
     while it < max_iter:
         it += 1
         q = TAU * (c + mdp.P @ h) + (1.0 - TAU) * own
-        th, choice = _segment_argmin(q, mdp.pair_start)
+        th = np.minimum.reduceat(q, starts)  # the argmin is only needed once, at the end
         diff = (th - h) / TAU
         lower, upper = float(diff.min()), float(diff.max())
         h = th - th[ref]
@@ -72,6 +73,8 @@ def relative_value_iteration(mdp: FiniteMDP, rel_tol: float = 1e-6, max_iter: in
         if upper - lower <= rel_tol * max(abs(lower), 1e-12):
             converged = True
             break
+    # greedy w.r.t. the last h: the policy whose cost the bounds enclose (Odoni 1969)
+    _, choice = _segment_argmin(q, mdp.pair_start)
     return IterationOutcome(0.5 * (lower + upper), lower, upper, h, choice, it,
                             time.perf_counter() - t0, converged)
 
@@ -85,10 +88,12 @@ def discounted_value_iteration(mdp: FiniteMDP, beta: float, rel_tol: float = 1e-
     it = 0
     converged = False
     lo = hi = 0.0
-    choice = np.zeros(mdp.n_states, dtype=np.int64)
+    starts = mdp.pair_start[:-1]
+    q = c
     while it < max_iter:
         it += 1
-        tv, choice = _segment_argmin(c + beta * (mdp.P @ v), mdp.pair_start)
+        q = c + beta * (mdp.P @ v)
+        tv = np.minimum.reduceat(q, starts)
         d = tv - v
         k = beta / (1.0 - beta)
         lo = float(tv[mdp.start] + k * d.min())
@@ -99,6 +104,7 @@ def discounted_value_iteration(mdp: FiniteMDP, beta: float, rel_tol: float = 1e-
         if hi - lo <= rel_tol * max(abs(lo), 1e-12):
             converged = True
             break
+    _, choice = _segment_argmin(q, mdp.pair_start)
     return IterationOutcome(0.5 * (lo + hi), lo, hi, v, choice, it, time.perf_counter() - t0, converged)
 
 
