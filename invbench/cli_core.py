@@ -7,6 +7,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from invbench.baselines.exact import DEFAULT_MAX_MEMORY_MB, DEFAULT_MAX_STATES
 from invbench.envs.errors import SpecError
 
 
@@ -30,7 +31,12 @@ def _solve(args: argparse.Namespace) -> int:
     from invbench.api import load_spec, solve
     from invbench.baselines.summary import summarize
     spec = load_spec(args.spec)
-    res = solve(spec, rel_tol=args.rel_tol, progress=not args.json and sys.stderr.isatty())
+    if not 0 < args.rel_tol < 1:
+        raise SpecError(f"--rel-tol: must be in (0, 1), got {args.rel_tol}")
+    if args.max_states < 1 or args.max_memory_mb <= 0:
+        raise SpecError("--max-states / --max-memory-mb: must be > 0")
+    res = solve(spec, rel_tol=args.rel_tol, max_states=args.max_states, max_memory_mb=args.max_memory_mb,
+                progress=not args.json and sys.stderr.isatty())
     if args.json:
         d = res.to_dict()
         d["instance"] = spec.to_dict()
@@ -105,6 +111,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("spec", help="instance TOML file")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     p.add_argument("--rel-tol", type=float, default=1e-6, help="certified relative gap (default 1e-6)")
+    p.add_argument("--max-states", type=int, default=DEFAULT_MAX_STATES,
+                   help=f"refuse instances with more states (default {DEFAULT_MAX_STATES:,})")
+    p.add_argument("--max-memory-mb", type=float, default=DEFAULT_MAX_MEMORY_MB,
+                   help=f"refuse instances whose estimated peak memory is larger (default {DEFAULT_MAX_MEMORY_MB:,} MiB)")
     p.set_defaults(func=_solve)
 
     p = sub.add_parser("evaluate", help="cost of a policy on an instance, exact or simulated")

@@ -65,3 +65,11 @@ def test_solve_json_and_text(tmp_path, capsys):
     assert main(["solve", str(path)]) == 0
     out = capsys.readouterr().out
     assert "certified bounds" in out and "optimal order" in out
+
+
+def test_solve_refuses_over_budget_with_estimate(tmp_path, capsys):
+    path = tmp_path / "big.toml"
+    path.write_text(GOOD.replace("lead_time = 1", "lead_time = 4"))
+    assert main(["solve", str(path), "--max-states", "1000"]) == 2
+    err = capsys.readouterr().err
+    assert "states" in err and "MiB" in err and "budget" in err and len(err.strip().splitlines()) == 1
