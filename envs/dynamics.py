@@ -59,14 +59,19 @@ def _advance(state: np.ndarray, order: np.ndarray, end_level: np.ndarray, lead_t
     return nxt, received
 
 
+def _inputs(state: np.ndarray, order: np.ndarray, demand: np.ndarray, lead_time: int) -> tuple[np.ndarray, ...]:
+    """Integer arrays, and the stock available to meet demand (this order too when L = 0)."""
+    state = np.asarray(state, dtype=np.int64)
+    order = np.asarray(order, dtype=np.int64)
+    demand = np.asarray(demand, dtype=np.int64)
+    return state, order, demand, state[:, 0] + (order if lead_time == 0 else 0)
+
+
 def lost_sales_step(state: np.ndarray, order: np.ndarray, demand: np.ndarray, *, lead_time: int,
                     holding_cost: float, shortage_cost: float, unit_order_cost: float = 0.0,
                     fixed_order_cost: float = 0.0) -> tuple[np.ndarray, StepParts]:
     """One period of the lost-sales model: unmet demand is lost at a cost per unit."""
-    state = np.asarray(state, dtype=np.int64)
-    order = np.asarray(order, dtype=np.int64)
-    demand = np.asarray(demand, dtype=np.int64)
-    available = state[:, 0] + (order if lead_time == 0 else 0)
+    state, order, demand, available = _inputs(state, order, demand, lead_time)
     sales = np.minimum(available, demand)
     end = available - sales
     lost = demand - sales
@@ -81,10 +86,7 @@ def backorder_step(state: np.ndarray, order: np.ndarray, demand: np.ndarray, *, 
                    holding_cost: float, shortage_cost: float, unit_order_cost: float = 0.0,
                    fixed_order_cost: float = 0.0) -> tuple[np.ndarray, StepParts]:
     """One period of the backorder model: unmet demand waits, at a cost per unit per period."""
-    state = np.asarray(state, dtype=np.int64)
-    order = np.asarray(order, dtype=np.int64)
-    demand = np.asarray(demand, dtype=np.int64)
-    available = state[:, 0] + (order if lead_time == 0 else 0)
+    state, order, demand, available = _inputs(state, order, demand, lead_time)
     end = available - demand
     # Sales: this period's demand met at once from stock (the fill); the rest waits.
     sales = np.minimum(np.maximum(available, 0), demand)
