@@ -23,8 +23,16 @@ $(TEST_STAMP): $(STAMP)
 	$(PY) -m pip install --quiet -e ".[dev,cluster]"
 	touch $(TEST_STAMP)
 
+# The main job on the built-in default: the `quick` suite (invented instances), table + report.
 demo: $(STAMP)
-	$(PY) -m invbench demo
+	$(PY) -m invbench bench quick --out runs/quick
+
+# Reruns the classic lost-sales suite (classical policies and optimum) from scratch and
+# compares it cell by cell with the committed reference results.
+bench: $(STAMP)
+	rm -rf runs/bench-classic-lost-sales
+	$(PY) -m invbench bench classic-lost-sales --skip-agents --out runs/bench-classic-lost-sales --no-report
+	$(PY) -m invbench bench-compare runs/bench-classic-lost-sales experiments/reference/classic-lost-sales.csv
 
 test: $(TEST_STAMP)
 	$(PY) -m pytest -n 2 -q

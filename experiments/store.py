@@ -15,6 +15,7 @@ import json
 import math
 import os
 import tempfile
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterable
 
@@ -29,7 +30,7 @@ INSTANCE_COLUMNS = ["suite", "instance", "model", "lead_time", "holding_cost", "
                     "discount", "demand", "demand_mean"]
 POLICY_COLUMNS = ["policy", "kind", "policy_name", "params", "seed"]
 RESULT_COLUMNS = ["cost", "ci_halfwidth", "method", "gap", "gap_ci", "optimum", "lower", "upper",
-                  "holding", "shortage", "ordering", "status", "error"]
+                  "holding", "shortage", "ordering", "status", "error", "note"]
 #: Columns that differ between two runs of the same cells; comparisons leave them out.
 TIMING_COLUMNS = ["wall_seconds", "cpu_seconds", "worker", "finished_at"]
 COLUMNS = INSTANCE_COLUMNS + POLICY_COLUMNS + RESULT_COLUMNS + TIMING_COLUMNS + ["cell_id"]
@@ -223,3 +224,109 @@ def read_table(path: str | Path) -> pd.DataFrame:
     if p.suffix == ".parquet":
         return pd.read_parquet(p)
     return pd.read_csv(p, keep_default_na=True)
+
+
+def collect_metadata() -> dict[str, Any]:
+    """Package versions, git commit of the code that ran, and the machine."""
+    import platform
+    import subprocess
+    import sys
+    from importlib import metadata as md
+
+    versions = {"python": platform.python_version()}
+    for pkg in ("invbench", "numpy", "scipy", "pandas", "gymnasium", "torch", "stable-baselines3",
+                "matplotlib", "pyarrow", "ray"):
+        try:
+            versions[pkg] = md.version(pkg)
+        except md.PackageNotFoundError:
+            pass
+    git: dict[str, Any] = {"commit": None, "dirty": None}
+    here = Path(__file__).resolve().parent
+    try:
+        head = subprocess.run(["git", "-C", str(here), "rev-parse", "HEAD"], capture_output=True,
+                              text=True, timeout=10)
+        if head.returncode == 0:
+            git["commit"] = head.stdout.strip()
+            st = subprocess.run(["git", "-C", str(here), "status", "--porcelain", "--untracked-files=no"],
+                                capture_output=True, text=True, timeout=10)
+            git["dirty"] = bool(st.stdout.strip())
+    except (OSError, subprocess.SubprocessError):
+        pass
+    try:
+        mem_gb = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES") / 2**30
+    except (ValueError, OSError, AttributeError):
+        mem_gb = None
+    machine = {"hostname": platform.node(), "platform": platform.platform(),
+               "processor": platform.machine(), "cpu_count": os.cpu_count(),
+               "memory_gb": round(mem_gb, 1) if mem_gb else None, "executable": sys.executable}
+    return {"versions": versions, "git": git, "machine": machine}
+
+
+@dataclass
+class Comparison:
+    """Outcome of comparing a results table with a reference table, cell by cell."""
+
+    compared: int
+    differences: list[str]
+    missing: list[str]
+    extra: list[str]
+    notes: list[str]
+
+    @property
+    def ok(self) -> bool:
+        return not self.differences and not self.missing
+
+    def lines(self) -> list[str]:
+        out = [f"DIFF {d}" for d in self.differences] + [f"MISSING {m}" for m in self.missing]
+        out += [f"note: {n}" for n in self.notes]
+        if self.extra:
+            out.append(f"note: {len(self.extra)} cell(s) not in the reference were not compared")
+        out.append(f"bench-compare: {self.compared} cells compared, {len(self.differences)} differ, "
+                   f"{len(self.missing)} missing -> {'OK' if self.ok else 'MISMATCH'}")
+        return out
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"compared": self.compared, "differences": self.differences, "missing": self.missing,
+                "extra": self.extra, "notes": self.notes, "ok": self.ok}
+
+
+def compare_results(new: pd.DataFrame, ref: pd.DataFrame, rtol_exact: float = 2e-6) -> Comparison:
+    """Exact cells: |new - ref| <= rtol_exact * |ref|. Simulated cells: within the 95 % interval of
+    the difference of two independent estimates, sqrt(ci_new^2 + ci_ref^2)."""
+    key = ["instance", "policy", "seed"]
+
+    def index(df: pd.DataFrame) -> dict[tuple, Any]:
+        ok = df[df["status"] == "ok"] if "status" in df.columns else df
+        return {(str(r.instance), str(r.policy), int(r.seed)): r for r in ok.itertuples(index=False)}
+
+    a, b = index(new), index(ref)
+    diffs, missing, notes = [], [], []
+    for k, r in b.items():
+        label = f"{k[0]} | {k[1]} seed {k[2]}"
+        n = a.get(k)
+        if n is None:
+            missing.append(label)
+            continue
+        if n.method != r.method:
+            diffs.append(f"{label}: method {n.method} vs reference {r.method}")
+            continue
+        delta = float(n.cost) - float(r.cost)
+        if r.method == "exact":
+            tol = rtol_exact * abs(float(r.cost)) + 1e-12
+        else:
+            tol = math.hypot(_f(n.ci_halfwidth), _f(r.ci_halfwidth))
+        if not abs(delta) <= tol:
+            diffs.append(f"{label}: cost {float(n.cost):.6f} vs reference {float(r.cost):.6f} "
+                         f"(diff {delta:+.3g}, tolerance {tol:.3g}, {r.method})")
+        elif str(n.params) != str(r.params) and n.kind != "agent":
+            notes.append(f"{label}: parameters {n.params} vs reference {r.params} (cost within tolerance)")
+    extra = [f"{k[0]} | {k[1]} seed {k[2]}" for k in a if k not in b]
+    return Comparison(len(b) - len(missing), diffs, missing, extra, notes)
+
+
+def _f(v: Any) -> float:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return 0.0
+    return f if math.isfinite(f) else 0.0

@@ -18,7 +18,7 @@ from typing import Any, Mapping
 import tomli_w
 
 from invbench.envs.errors import SpecError
-from invbench.envs.spec import InstanceSpec, load_spec, spec_from_dict
+from invbench.envs.spec import MODELS, InstanceSpec, load_spec, spec_from_dict
 
 SUITES_DIR = Path(__file__).resolve().parent / "suites"
 #: Bumped when a cell's result format changes, so old results are not mistaken for new ones.
@@ -28,7 +28,7 @@ EVAL_KEYS = {"method": str, "replications": int, "periods": int, "warmup": int}
 EVAL_METHODS = ("auto", "exact", "simulate")
 SUITE_KEYS = ("name", "description", "seeds", "sweep", "invented")
 POLICY_KEYS = ("kind", "name", "label", "params", "agent", "steps", "settings", "function",
-               "seeds", "evaluation")
+               "seeds", "evaluation", "models", "cpu_seconds")
 INSTANCE_EXTRA_KEYS = ("file", "vary")
 
 
@@ -46,6 +46,8 @@ class PolicyEntry:
     function: str = ""
     seeds: tuple[int, ...] = (0,)
     evaluation: Mapping[str, Any] = field(default_factory=dict)
+    models: tuple[str, ...] = ()  # empty: every instance; else only instances of these models
+    cpu_seconds: float = 0.0  # agents: stop training once a cell has used this much CPU (0: no cap)
 
     def to_dict(self) -> dict[str, Any]:
         d: dict[str, Any] = {"kind": self.kind, "label": self.label}
@@ -56,11 +58,15 @@ class PolicyEntry:
             d["params"] = dict(self.params)
         if self.kind == "agent":
             d["steps"] = self.steps
+            if self.cpu_seconds:
+                d["cpu_seconds"] = self.cpu_seconds
         if self.settings:
             d["settings"] = dict(self.settings)
         d["seeds"] = list(self.seeds)
         if self.evaluation:
             d["evaluation"] = dict(self.evaluation)
+        if self.models:
+            d["models"] = list(self.models)
         return d
 
 
@@ -97,6 +103,7 @@ def _semantic(p: PolicyEntry) -> dict[str, Any]:
     d = p.to_dict()
     d.pop("label", None)
     d.pop("seeds", None)
+    d.pop("models", None)
     return d
 
 
@@ -123,6 +130,8 @@ class Suite:
                 continue
             ev = {**self.evaluation, **p.evaluation}
             for spec in self.instances:
+                if p.models and spec.model not in p.models:
+                    continue
                 for seed in p.seeds:
                     out.append(Cell(self.name, spec, p, seed, ev))
         return out
@@ -330,7 +339,10 @@ def _policy(d: dict[str, Any], where: str, default_seeds: tuple[int, ...]) -> Po
     settings = _table(d.get("settings"), f"{where}.settings")
     evaluation = _evaluation(d.get("evaluation", {}), f"{where}.evaluation")
     seeds = _seeds(d["seeds"], f"{where}.seeds") if "seeds" in d else default_seeds
-    agent, steps, function = "", 0, ""
+    models = d.get("models", [])
+    if not isinstance(models, list) or any(m not in MODELS for m in models):
+        raise SpecError(f"{where}.models: must be a list from {', '.join(MODELS)}, got {models!r}")
+    agent, steps, function, cpu = "", 0, "", 0.0
     if kind == "optimum":
         seeds = (0,)  # the certified optimum does not depend on a seed: one cell per instance
         name = "optimum"
@@ -343,6 +355,9 @@ def _policy(d: dict[str, Any], where: str, default_seeds: tuple[int, ...]) -> Po
         if not isinstance(agent, str) or not agent:
             raise SpecError(f"{where}.agent: required for an agent entry, e.g. \"ppo\"")
         steps = _int(d.get("steps"), f"{where}.steps", 1)
+        cpu = d.get("cpu_seconds", 0.0)
+        if isinstance(cpu, bool) or not isinstance(cpu, (int, float)) or cpu < 0:
+            raise SpecError(f"{where}.cpu_seconds: must be a number >= 0 (0: no cap), got {cpu!r}")
     else:
         function = d.get("function", "")
         if not isinstance(function, str) or ":" not in function:
@@ -350,7 +365,8 @@ def _policy(d: dict[str, Any], where: str, default_seeds: tuple[int, ...]) -> Po
     label = d.get("label") or _default_label(kind, name, agent, function, params)
     if not isinstance(label, str):
         raise SpecError(f"{where}.label: must be a string, got {label!r}")
-    return PolicyEntry(kind, label, name, params, agent, steps, settings, function, seeds, evaluation)
+    return PolicyEntry(kind, label, name, params, agent, steps, settings, function, seeds, evaluation,
+                       tuple(models), float(cpu))
 
 
 def _infer_kind(d: Mapping[str, Any]) -> str:
@@ -374,11 +390,8 @@ def _default_label(kind: str, name: str, agent: str, function: str, params: Any)
 
 
 def _check_classical(name: str, where: str) -> None:
-    # The policy registry may not be installed yet; then names are checked when the cell runs.
-    try:
-        from invbench.baselines.policies.registry import policy_names
-    except ImportError:
-        return
+    from invbench.baselines.policies.registry import policy_names  # late: keeps suite loading light
+
     names = list(policy_names())
     if name not in names:
         raise SpecError(f"{where}.name: must be one of optimum, {', '.join(names)}, got {name!r}")

@@ -1,0 +1,118 @@
+"""Command-line plug-in of the experiments part: `bench`, `report` and `bench-compare`.
+
+Loaded by `invbench.cli` through `register(subparsers)`. Bad input raises SpecError, which
+the main CLI turns into one line and exit code 2.
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+from typing import Any
+
+from invbench.envs.errors import SpecError
+
+
+def register(subparsers: Any) -> None:
+    b = subparsers.add_parser(
+        "bench", help="run a benchmark suite (resumes an interrupted run in the same --out)",
+        description="Run every (instance, policy, seed) cell of a suite, store each finished cell "
+                    "at once, and write the results table and a report. Rerunning the same command "
+                    "skips finished cells.")
+    b.add_argument("suite", nargs="?", help="suite TOML file, or the name of a packaged suite (see --list)")
+    b.add_argument("--out", help="results folder (default: runs/SUITE-NAME)")
+    b.add_argument("--workers", type=int, default=None,
+                   help="processes running cells at once (default: CPU count; 1 = in this process); with ray and no "
+                        "--address, the CPUs of the private Ray instance")
+    b.add_argument("--backend", default="local", help="local (process pool, default) or ray")
+    b.add_argument("--address", default=None,
+                   help="ray backend: address HOST:PORT of a running Ray cluster (default: a private local Ray instance)")
+    b.add_argument("--skip-agents", action="store_true", help="leave out the RL agent cells")
+    b.add_argument("--no-report", action="store_true", help="do not write the report at the end")
+    b.add_argument("--no-progress", action="store_true", help="no progress bar (summary lines only)")
+    b.add_argument("--list", action="store_true", help="list the packaged suites and exit")
+    b.set_defaults(func=_bench)
+
+    r = subparsers.add_parser("report", help="write report.md, report.html and PNG plots for a results folder")
+    r.add_argument("dir", help="results folder written by `invbench bench`")
+    r.set_defaults(func=_report)
+
+    c = subparsers.add_parser(
+        "bench-compare", help="compare a results folder with reference results, cell by cell",
+        description="Match cells by (instance, policy, seed) and check the cost within tolerance: exact "
+                    "cells to a relative --rtol-exact, simulated cells to the 95% interval of a "
+                    "difference of two estimates, sqrt(ci_new^2 + ci_ref^2). Exit 1 when any differs.")
+    c.add_argument("dir", help="results folder (or results CSV/Parquet) to check")
+    c.add_argument("reference", help="reference results CSV/Parquet (or folder)")
+    c.add_argument("--rtol-exact", type=float, default=2e-6,
+                   help="relative tolerance for exact cells (default 2e-6: twice the solver's certified gap)")
+    c.add_argument("--update", action="store_true",
+                   help="write DIR's results (timing columns left out) as the new reference instead of comparing")
+    c.set_defaults(func=_compare)
+
+
+def _bench(args: argparse.Namespace) -> int:
+    from .suite import load_suite, packaged_suites
+
+    if args.list:
+        for name in packaged_suites():
+            s = load_suite(name)
+            print(f"{name:24s} {len(s.cells())} cells  {s.description}")
+        return 0
+    if not args.suite:
+        raise SpecError("suite: required (a TOML file or a packaged suite name; see --list)")
+    if args.workers is not None and args.workers < 1:
+        raise SpecError(f"--workers: must be >= 1, got {args.workers}")
+    from .runner import run_bench
+
+    suite = load_suite(args.suite)
+    out = Path(args.out) if args.out else Path("runs") / suite.name
+    res = run_bench(suite, out, backend=args.backend, workers=args.workers, address=args.address,
+                    skip_kinds=("agent",) if args.skip_agents else (), progress=not args.no_progress,
+                    command=["invbench", *sys.argv[1:]])
+    from .console_table import format_tables
+    from .store import read_table
+
+    table = res.out / "results.csv"
+    if table.exists():
+        for line in format_tables(read_table(res.out)):
+            print(line)
+        print()
+    print(f"results: {res.out / 'results.csv'} ({res.ran} cells run, {res.already_done} already done, "
+          f"{len(res.failed)} failed, {res.seconds:.1f}s)")
+    if not args.no_report:
+        from .report import write_report
+
+        rep = write_report(res.out)
+        print(f"report: {rep.html}")
+    if res.failed:
+        sys.stderr.write(f"invbench: {len(res.failed)} cell(s) failed; rerun the same command to retry them:\n")
+        for line in res.failed[:20]:
+            sys.stderr.write(f"  {line}\n")
+        return 1
+    return 0
+
+
+def _report(args: argparse.Namespace) -> int:
+    from .report import write_report
+
+    rep = write_report(Path(args.dir))
+    for p in rep.files():
+        print(p)
+    return 0
+
+
+def _compare(args: argparse.Namespace) -> int:
+    from .store import TIMING_COLUMNS, atomic_write, compare_results, read_table
+
+    if args.update:
+        df = read_table(args.dir).drop(columns=TIMING_COLUMNS, errors="ignore")
+        atomic_write(Path(args.reference), df.to_csv(index=False))
+        print(f"reference written: {args.reference} ({len(df)} cells)")
+        return 0
+    if not args.rtol_exact > 0:
+        raise SpecError(f"--rtol-exact: must be > 0, got {args.rtol_exact}")
+    res = compare_results(read_table(args.dir), read_table(args.reference), rtol_exact=args.rtol_exact)
+    for line in res.lines():
+        print(line)
+    return 0 if res.ok else 1

@@ -1,0 +1,252 @@
+"""`invbench report DIR`: report.md, a self-contained report.html and the PNG figures.
+
+The report is built once as a list of blocks (headings, paragraphs, tables, figures) and
+rendered twice, to Markdown (figures linked) and to HTML (figures embedded as base64), so the
+two never disagree.
+"""
+from __future__ import annotations
+
+import base64
+import html
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from . import plots
+from .store import ResultStore, atomic_write
+
+
+@dataclass
+class ReportResult:
+    md: Path
+    html: Path
+    pngs: list[Path] = field(default_factory=list)
+
+    def files(self) -> list[Path]:
+        return [self.md, self.html, *self.pngs]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"md": str(self.md), "html": str(self.html), "pngs": [str(p) for p in self.pngs]}
+
+
+def _pct(v: Any, digits: int = 2) -> str:
+    # round first and add 0.0 so a gap of -1e-9 (within the solver's tolerance) shows as 0.000%
+    return "" if v is None or pd.isna(v) else f"{round(100 * float(v), digits) + 0.0:.{digits}f}%"
+
+
+def _num(v: Any, digits: int = 4) -> str:
+    return "" if v is None or pd.isna(v) else f"{float(v):.{digits}f}"
+
+
+def _params(txt: Any) -> str:
+    try:
+        d = json.loads(txt) if isinstance(txt, str) else {}
+    except json.JSONDecodeError:
+        return str(txt)
+    return ", ".join(f"{k}={v}" for k, v in d.items())
+
+
+def write_report(root: str | Path) -> ReportResult:
+    """Rebuild the table from the cell files, draw the figures and write both report files."""
+    store = ResultStore(root)
+    suite = store.suite()
+    df = store.write_table(suite)
+    records = {r["cell_id"]: r for r in store.records(suite.cells())}
+    meta = store.metadata()
+    root = store.root
+    blocks: list[tuple[str, Any]] = []
+    pngs: list[Path] = []
+
+    def figure(p: Path | None, caption: str) -> None:
+        if p is not None:
+            pngs.append(p)
+            blocks.append(("figure", (p.name, caption)))
+
+    blocks.append(("h1", f"Benchmark report: {suite.name}"))
+    if suite.description:
+        blocks.append(("p", suite.description))
+    if suite.invented:
+        blocks.append(("p", "All instances in this suite are invented (a made-up bicycle-parts "
+                            "wholesaler); they hold no real company's data."))
+    blocks.append(("p", _run_line(df, meta)))
+    blocks.append(("p", "Gap = (cost - optimum) / optimum, with the optimum the certified exact "
+                        "average cost per period. Exact cells carry no sampling error; simulated cells "
+                        "give a 95% confidence interval (CI) from independent replications with common "
+                        "random numbers across policies."))
+    blocks.append(("h2", "Gap to the optimum"))
+    figure(plots.gap_chart(df, root / "gap.png", suite.name),
+           "Gap to the optimum per instance and policy, with 95% CI whiskers.")
+    blocks.append(("h2", "Summary by policy"))
+    blocks.append(("table", _summary_table(df)))
+    if suite.sweep == "lead_time":
+        blocks.append(("h2", "Gap vs lead time"))
+        figure(plots.gap_vs_lead_time(df, root / "gap_vs_lead_time.png", suite.name),
+               "How each policy's gap grows with the lead time.")
+    curves, optimum = _curves(df, records)
+    if curves:
+        blocks.append(("h2", "Learning curves"))
+        figure(plots.learning_curves(curves, optimum, root / "learning_curves.png"),
+               "Cost of the greedy policy during training; dashed: the optimum.")
+    pm = _policy_map(df, records)
+    if pm is not None:
+        inst, opt_map, other_map, label = pm
+        blocks.append(("h2", "Policy map"))
+        figure(plots.policy_map_chart(inst, opt_map, other_map, label, root / "policy_map.png"),
+               f"Optimal order vs {label} on {inst}, over on-hand stock and pipeline total.")
+    blocks.append(("h2", "Results per instance"))
+    for inst, g in df.groupby("instance", sort=False):
+        blocks.append(("h3", f"{inst}"))
+        blocks.append(("p", _instance_line(g.iloc[0])))
+        blocks.append(("table", _instance_table(g)))
+    bad = df[df["status"] != "ok"]
+    if not bad.empty:
+        blocks.append(("h2", "Failed cells"))
+        blocks.append(("table", (["instance", "policy", "seed", "error"],
+                                 [[r.instance, r.policy, str(r.seed), str(r.error)] for r in bad.itertuples()])))
+    md_path, html_path = root / "report.md", root / "report.html"
+    atomic_write(md_path, _to_md(blocks))
+    atomic_write(html_path, _to_html(blocks, root, suite.name))
+    return ReportResult(md_path, html_path, pngs)
+
+
+def _run_line(df: pd.DataFrame, meta: dict[str, Any]) -> str:
+    inv = (meta.get("invocations") or [{}])[-1]
+    git = meta.get("git") or {}
+    commit = (git.get("commit") or "unknown")[:10] + (" (uncommitted changes)" if git.get("dirty") else "")
+    versions = meta.get("versions") or {}
+    mach = meta.get("machine") or {}
+    n_ok = int((df["status"] == "ok").sum())
+    return (f"{len(df)} cells ({n_ok} finished, {len(df) - n_ok} failed); last run {inv.get('finished', '?')} "
+            f"on {mach.get('hostname', '?')} ({mach.get('cpu_count', '?')} CPUs), backend "
+            f"{inv.get('backend', '?')}; invbench {versions.get('invbench', '?')}, git {commit}, "
+            f"numpy {versions.get('numpy', '?')}, torch {versions.get('torch', '?')}.")
+
+
+def _instance_line(r: Any) -> str:
+    parts = [f"model {r.model}", f"lead time {r.lead_time}", f"demand {r.demand}",
+             f"holding {r.holding_cost:g}", f"shortage {r.shortage_cost:g}"]
+    if r.fixed_order_cost:
+        parts.append(f"fixed order cost {r.fixed_order_cost:g}")
+    if r.unit_order_cost:
+        parts.append(f"unit order cost {r.unit_order_cost:g}")
+    if r.case_pack != 1:
+        parts.append(f"case pack {r.case_pack}")
+    return ", ".join(parts) + "."
+
+
+def _instance_table(g: pd.DataFrame) -> tuple[list[str], list[list[str]]]:
+    head = ["policy", "parameters", "seed", "cost per period", "± 95% CI", "gap", "method", "seconds"]
+    rows = []
+    for r in g.itertuples():
+        if r.status != "ok":
+            rows.append([r.policy, "", str(r.seed), "failed", "", "", "", _num(r.wall_seconds, 1)])
+            continue
+        ci = "" if r.method == "exact" else _num(r.ci_halfwidth)  # exact: no sampling error
+        rows.append([r.policy, _params(r.params), str(r.seed), _num(r.cost), ci,
+                     _pct(r.gap, 3), str(r.method), _num(r.wall_seconds, 1)])
+    return head, rows
+
+
+def _summary_table(df: pd.DataFrame) -> tuple[list[str], list[list[str]]]:
+    ok = df[(df["status"] == "ok") & (df["kind"] != "optimum")]
+    head = ["policy", "cells", "mean gap", "max gap", "exact cells", "simulated cells"]
+    rows = []
+    for pol, g in ok.groupby("policy", sort=False):
+        gaps = g["gap"].dropna()
+        rows.append([pol, str(len(g)), _pct(gaps.mean()) if len(gaps) else "",
+                     _pct(gaps.max()) if len(gaps) else "", str(int((g["method"] == "exact").sum())),
+                     str(int((g["method"] == "simulated").sum()))])
+    return head, rows
+
+
+def _curves(df: pd.DataFrame, records: dict[str, Any]) -> tuple[list[dict[str, Any]], dict[str, float]]:
+    optimum = {r.instance: r.optimum for r in df.itertuples() if pd.notna(r.optimum)}
+    curves = []
+    for r in records.values():
+        rows = (r.get("extras") or {}).get("learning_curve")
+        if r.get("status") == "ok" and rows:
+            curves.append({"instance": r["instance"], "policy": r["policy"], "seed": r["seed"], "rows": rows})
+    return curves, optimum
+
+
+def _policy_map(df: pd.DataFrame, records: dict[str, Any]) -> tuple[str, dict, dict, str] | None:
+    """First lost-sales instance with an optimal map and a learned one (else the best classical)."""
+    maps: dict[str, dict[str, Any]] = {}
+    for r in records.values():
+        m = (r.get("extras") or {}).get("policy_map")
+        if r.get("status") == "ok" and m:
+            maps.setdefault(r["instance"], {})[r["cell_id"]] = (r, m)
+    gaps = {r.cell_id: r.gap for r in df.itertuples()}
+    for inst, cells in maps.items():
+        opt = [m for r, m in cells.values() if r["kind"] == "optimum"]
+        if not opt:
+            continue
+        learned = [(r, m) for r, m in cells.values() if r["kind"] == "agent"]
+        if learned:
+            r, m = learned[0]
+            return inst, opt[0], m, r["policy"]
+        others = [(gaps.get(cid), r, m) for cid, (r, m) in cells.items()
+                  if r["kind"] != "optimum" and gaps.get(cid) is not None and pd.notna(gaps.get(cid))]
+        if others:
+            _, r, m = min(others, key=lambda t: t[0])
+            return inst, opt[0], m, r["policy"]
+    return None
+
+
+# ---------------------------------------------------------------------------- rendering
+def _to_md(blocks: list[tuple[str, Any]]) -> str:
+    out = []
+    for kind, val in blocks:
+        if kind in ("h1", "h2", "h3"):
+            out.append("#" * int(kind[1]) + " " + val)
+        elif kind == "p":
+            out.append(val)
+        elif kind == "figure":
+            name, caption = val
+            out.append(f"![{caption}]({name})\n\n*{caption}*")
+        elif kind == "table":
+            head, rows = val
+            cell = lambda s: str(s).replace("|", "\\|")  # noqa: E731
+            out.append("| " + " | ".join(head) + " |\n|" + "---|" * len(head) + "\n"
+                       + "\n".join("| " + " | ".join(cell(c) for c in r) + " |" for r in rows))
+        out.append("")
+    return "\n".join(out)
+
+
+_CSS = """body{font-family:system-ui,-apple-system,Segoe UI,sans-serif;max-width:1200px;margin:2em auto;
+padding:0 1em;color:#222;line-height:1.45}table{border-collapse:collapse;margin:.6em 0 1.2em;font-size:.9em}
+th,td{border:1px solid #ccc;padding:.25em .6em;text-align:right}th{background:#eef2f6}
+td:first-child,td:nth-child(2),th:first-child,th:nth-child(2){text-align:left}
+figure{margin:1em 0}figure img{max-width:100%;border:1px solid #ddd}figcaption{color:#555;font-size:.9em}
+h1{border-bottom:2px solid #446}h2{margin-top:1.6em;border-bottom:1px solid #ccd}"""
+
+# Marks the page once every image has decoded, so a headless browser check can read it from the DOM.
+_SCRIPT = """window.addEventListener('load',function(){var im=document.images,n=0;
+for(var i=0;i<im.length;i++){if(im[i].complete&&im[i].naturalWidth>0)n++;}
+document.body.setAttribute('data-images-loaded',n+'/'+im.length);});"""
+
+
+def _to_html(blocks: list[tuple[str, Any]], root: Path, title: str) -> str:
+    e = html.escape
+    out = ["<!DOCTYPE html>", "<html lang=\"en\"><head><meta charset=\"utf-8\">",
+           f"<title>invbench report: {e(title)}</title><style>{_CSS}</style></head><body>"]
+    for kind, val in blocks:
+        if kind in ("h1", "h2", "h3"):
+            out.append(f"<{kind}>{e(val)}</{kind}>")
+        elif kind == "p":
+            out.append(f"<p>{e(val)}</p>")
+        elif kind == "figure":
+            name, caption = val
+            data = base64.b64encode((root / name).read_bytes()).decode()
+            out.append(f"<figure><img src=\"data:image/png;base64,{data}\" alt=\"{e(caption)}\">"
+                       f"<figcaption>{e(caption)}</figcaption></figure>")
+        elif kind == "table":
+            head, rows = val
+            out.append("<table><thead><tr>" + "".join(f"<th>{e(h)}</th>" for h in head) + "</tr></thead><tbody>"
+                       + "".join("<tr>" + "".join(f"<td>{e(str(c))}</td>" for c in r) + "</tr>" for r in rows)
+                       + "</tbody></table>")
+    out.append(f"<script>{_SCRIPT}</script></body></html>")
+    return "\n".join(out)
