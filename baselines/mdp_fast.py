@@ -59,16 +59,21 @@ def build_lost_sales_fast(spec: InstanceSpec, bounds: Bounds) -> FiniteMDP:
 
     # rows: entries e with M[avail, e] > 0, columns base_idx + e (consecutive stock levels)
     nz_rows, nz_cols = np.nonzero(M)  # sorted by row, then column
+    nz_vals = M[nz_rows, nz_cols]
     counts = np.bincount(nz_rows, minlength=amax + 1)
     offs = np.concatenate([[0], np.cumsum(counts)])
     lengths = counts[avail]
     indptr = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
-    rows = np.repeat(np.arange(len(pair_state)), lengths)
-    within = np.arange(indptr[-1]) - indptr[rows]
-    flat = offs[avail[rows]] + within
-    cols = base_idx[rows] + nz_cols[flat]
-    data = M[nz_rows[flat], nz_cols[flat]]
-    P = sp.csr_matrix((data, cols.astype(np.int32), indptr), shape=(len(pair_state), len(states)))
+    # entry j of pair k sits at flat index offs[avail[k]] + j of the (avail, e) list; int32
+    # index arithmetic halves the memory traffic of these multi-million-entry arrays
+    rows = np.repeat(np.arange(len(pair_state), dtype=np.int32), lengths)
+    shift = (offs[avail] - indptr[:-1]).astype(np.int32)
+    flat = np.arange(indptr[-1], dtype=np.int32)
+    flat += shift[rows]
+    cols = base_idx.astype(np.int32)[rows]
+    cols += nz_cols.astype(np.int32)[flat]
+    data = nz_vals[flat]
+    P = sp.csr_matrix((data, cols, indptr), shape=(len(pair_state), len(states)))
 
     cost_parts = np.column_stack([hold[avail], short[avail], parts0.ordering])
     start = int(index.lookup(np.zeros((1, n), dtype=np.int64))[0])

@@ -17,12 +17,23 @@ from invbench import solve  # noqa: E402
 from invbench.envs.errors import BudgetError  # noqa: E402
 from invbench.experiments.simulate import simulate  # noqa: E402
 
-MEMORY_BUDGET_MB = 2048
+
+
+def available_mb() -> float:
+    """MemAvailable from /proc/meminfo: the budget is what this machine can give right now."""
+    with open("/proc/meminfo") as f:
+        for line in f:
+            if line.startswith("MemAvailable:"):
+                return int(line.split()[1]) / 1024
+    return 2048.0
+
+
+MEMORY_BUDGET_MB = 0.8 * available_mb()
 
 
 def main() -> None:
     print(f"machine: {machine()}")
-    print(f"solver, Poisson mean 5, p = 9, memory budget {MEMORY_BUDGET_MB} MiB")
+    print(f"solver, Poisson mean 5, p = 9, memory budget {MEMORY_BUDGET_MB:,.0f} MiB (80% of MemAvailable)")
     print(f"{'L':>2} {'states':>10} {'pairs':>11} {'iters':>5} {'seconds':>8} {'peak MiB':>8} {'cost':>9}")
     for L in range(1, 8):
         spec = classic_spec(L, 9)
