@@ -33,7 +33,6 @@ class LearnedPolicy(PolicyBase):
         self.net = net.eval()
         self.agent = agent
         self.meta: dict[str, Any] = dict(meta or {})
-        self._sizes = scaling.order_sizes_units
 
     def action_index(self, obs: np.ndarray) -> np.ndarray:
         """Index of the chosen order size for each row of `obs`."""
@@ -50,7 +49,9 @@ class LearnedPolicy(PolicyBase):
         return out
 
     def act(self, obs: np.ndarray) -> np.ndarray:
-        return self._sizes[self.action_index(obs)]
+        obs = np.asarray(obs)
+        obs2 = obs.reshape(1, -1) if obs.ndim == 1 else obs
+        return self.scaling.orders(obs2, self.action_index(obs2))
 
     def params(self) -> dict[str, Any]:
         return {"agent": self.agent, "hidden": list(self.net.arch["hidden"]),

@@ -3,7 +3,8 @@
 Networks see `state / obs_scale - 1` (mean demand as the unit, so one setting fits instances of
 any size), rewards are `-(cost - reward_offset) / reward_scale` (a reference cost as offset and
 unit keeps value targets near zero), and actions index the order sizes 0, q, 2q, ... up to an
-order bound taken from a high demand quantile (orders beyond it are never needed in steady state).
+order bound taken from a high demand quantile (orders beyond it are never needed in steady state),
+and orders never lift the inventory position above a cap derived from the instance.
 """
 from __future__ import annotations
 
@@ -29,6 +30,8 @@ class Scaling:
     reward_scale: float
     case_pack: int
     max_order_units: int
+    obs_clip: float = 0.0  # features clipped to [-obs_clip, obs_clip]; 0 = no clipping
+    position_cap: int = 0  # orders never lift the inventory position above this; 0 = no cap
 
     @property
     def n_actions(self) -> int:
@@ -39,7 +42,18 @@ class Scaling:
         return np.arange(self.n_actions, dtype=np.int64) * self.case_pack
 
     def features(self, obs: np.ndarray) -> np.ndarray:
-        return (np.asarray(obs, dtype=np.float32) / np.float32(self.obs_scale) - np.float32(self.obs_shift)).astype(np.float32)
+        x = np.asarray(obs, dtype=np.float32) / np.float32(self.obs_scale) - np.float32(self.obs_shift)
+        if self.obs_clip > 0:
+            x = np.clip(x, -self.obs_clip, self.obs_clip)
+        return x.astype(np.float32)
+
+    def orders(self, states: np.ndarray, index: np.ndarray) -> np.ndarray:
+        """Units ordered for action indices in raw states, after the position cap (if any)."""
+        units = self.order_sizes_units[np.asarray(index, dtype=np.int64)]
+        if self.position_cap > 0:
+            room = np.maximum(self.position_cap - np.asarray(states).sum(axis=1).astype(np.int64), 0)
+            units = np.minimum(units, (room // self.case_pack) * self.case_pack)
+        return units
 
     def reward(self, cost: np.ndarray) -> np.ndarray:
         return -(np.asarray(cost, dtype=np.float64) - self.reward_offset) / self.reward_scale
@@ -49,16 +63,18 @@ class Scaling:
 
     @classmethod
     def from_dict(cls, d: Mapping[str, Any]) -> "Scaling":
-        want = {"obs_scale", "obs_shift", "reward_offset", "reward_scale", "case_pack", "max_order_units"}
+        want = {"obs_scale", "obs_shift", "reward_offset", "reward_scale", "case_pack", "max_order_units", "obs_clip",
+                "position_cap"}
         if not isinstance(d, Mapping) or set(d) != want:
             raise SpecError(f"policy.json scaling: must have exactly the keys {', '.join(sorted(want))}")
         try:
             out = cls(obs_scale=float(d["obs_scale"]), obs_shift=float(d["obs_shift"]),
                       reward_offset=float(d["reward_offset"]), reward_scale=float(d["reward_scale"]),
-                      case_pack=int(d["case_pack"]), max_order_units=int(d["max_order_units"]))
+                      case_pack=int(d["case_pack"]), max_order_units=int(d["max_order_units"]),
+                      obs_clip=float(d["obs_clip"]), position_cap=int(d["position_cap"]))
         except (TypeError, ValueError):
             raise SpecError("policy.json scaling: values must be numbers") from None
-        if not (np.isfinite(out.obs_scale) and out.obs_scale > 0 and out.case_pack >= 1
+        if not (np.isfinite(out.obs_scale) and out.obs_scale > 0 and out.case_pack >= 1 and out.obs_clip >= 0 and out.position_cap >= 0
                 and out.max_order_units >= out.case_pack and out.max_order_units % out.case_pack == 0):
             raise SpecError("policy.json scaling: obs_scale must be > 0 and max_order_units a positive case-pack multiple")
         return out
@@ -85,6 +101,22 @@ def order_bound(spec: InstanceSpec, settings: CommonSettings) -> int:
     return int(min(units, spec.order_cap_units))
 
 
+def position_cap_for(spec: InstanceSpec) -> int:
+    """Automatic cap on the inventory position after ordering.
+
+    The backorder order-up-to level (critical fractile of lead-time demand) bounds the optimal
+    lost-sales position after ordering (Morton 1969; Zipkin 2008 — from memory), so a cap a
+    little above it never cuts off the optimum, while it keeps every learned policy stable and
+    its reachable state space finite for the exact evaluator. Margin: two standard deviations
+    of lead-time demand plus one case pack.
+    """
+    h, p = spec.holding_cost, spec.shortage_cost
+    ratio = p / (p + h) if p + h > 0 else 0.5
+    level = demand_quantile(spec, min(max(ratio, 0.5), 1 - 1e-9), spec.lead_time + 1)
+    sd = float(np.sqrt(spec.demand.var * (spec.lead_time + 1)))
+    return int(level + int(np.ceil(2 * sd)) + spec.case_pack)
+
+
 def reference_cost(spec: InstanceSpec, max_units: int, seed: int = 0) -> float:
     """Cost of a rough order-up-to rule (critical-ratio quantile of lead-time demand), by CRN.
 
@@ -108,9 +140,13 @@ def scaling_for(spec: InstanceSpec, settings: CommonSettings) -> Scaling:
     units = order_bound(spec, settings)
     obs_scale = float(spec.demand.mean) if settings.obs_scale == AUTO else float(settings.obs_scale)
     obs_scale = max(obs_scale, 1e-6)
+    if settings.position_cap == AUTO:
+        cap = position_cap_for(spec)
+    else:
+        cap = int(settings.position_cap)
     need_ref = settings.reward_scale == AUTO or settings.reward_offset == AUTO
     ref = reference_cost(spec, units) if need_ref else 1.0
     scale = ref if settings.reward_scale == AUTO else float(settings.reward_scale)
     offset = ref if settings.reward_offset == AUTO else float(settings.reward_offset)
     return Scaling(obs_scale=obs_scale, obs_shift=1.0, reward_offset=float(offset), reward_scale=float(scale),
-                   case_pack=spec.case_pack, max_order_units=units)
+                   case_pack=spec.case_pack, max_order_units=units, obs_clip=float(settings.obs_clip), position_cap=cap)

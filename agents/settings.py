@@ -19,7 +19,7 @@ AUTO = "auto"
 SB3_AGENTS = ("ppo", "a2c", "dqn")
 
 
-def _f(default: Any, kind: str, doc: str, lo: float | None = None, hi: float | None = None,
+def setting(default: Any, kind: str, doc: str, lo: float | None = None, hi: float | None = None,
        lo_open: bool = False, auto: bool = False, choices: tuple[str, ...] = (),
        agents: tuple[str, ...] = ()) -> Any:
     """A dataclass field carrying its own validation rule (kind: int, float, bool, str, ints)."""
@@ -31,46 +31,50 @@ def _f(default: Any, kind: str, doc: str, lo: float | None = None, hi: float | N
 class CommonSettings:
     """Settings every agent shares: network, instance-derived scaling, evaluation, logging."""
 
-    threads: int = _f(min(2, os.cpu_count() or 1), "int", "torch CPU threads", 1, 64)
-    hidden: tuple[int, ...] = _f((64, 64), "ints", "hidden layer widths of the policy network", 1, 4096)
-    activation: str = _f("tanh", "str", "hidden activation", choices=("tanh", "relu"))
-    obs_scale: Any = _f(AUTO, "float", "observation divisor (auto: mean demand per period)", 0.0, None, True, auto=True)
-    reward_scale: Any = _f(AUTO, "float", "cost divisor for rewards (auto: reference cost)", 0.0, None, True, auto=True)
-    reward_offset: Any = _f(AUTO, "float", "cost subtracted before scaling (auto: reference cost)", None, None, auto=True)
-    max_order_units: Any = _f(AUTO, "int", "largest order the agent may place (auto: demand quantile)", 1, None, auto=True)
-    order_quantile: float = _f(0.9999, "float", "demand quantile giving the automatic order bound", 0.5, 1.0, True)
-    episode_length: int = _f(500, "int", "periods per training episode", 1, 10**7)
-    eval_every: Any = _f(AUTO, "int", "training steps between learning-curve points (auto: 20 points)", 1, None, auto=True)
-    eval_replications: int = _f(32, "int", "replications of each learning-curve evaluation", 1, 10**6)
-    eval_periods: int = _f(1000, "int", "measured periods per replication", 1, 10**7)
-    eval_warmup: int = _f(100, "int", "periods discarded before measuring", 0, 10**7)
-    eval_seed: int = _f(20_240_601, "int", "seed of the common random numbers of the learning curve", 0, 2**63 - 1)
-    checkpoint_every: Any = _f(AUTO, "int", "training steps between checkpoints (auto: 5 per run, 0: none)", 0, None, auto=True)
-    progress: bool = _f(True, "bool", "show a progress bar")
+    threads: int = setting(min(2, os.cpu_count() or 1), "int", "torch CPU threads", 1, 64)
+    hidden: tuple[int, ...] = setting((64, 64), "ints", "hidden layer widths of the policy network", 1, 4096)
+    activation: str = setting("tanh", "str", "hidden activation", choices=("tanh", "relu"))
+    obs_scale: Any = setting(AUTO, "float", "observation divisor (auto: mean demand per period)", 0.0, None, True, auto=True)
+    obs_clip: float = setting(10.0, "float", "clip scaled observations to +-this (0: no clipping)", 0.0, None)
+    reward_scale: Any = setting(AUTO, "float", "cost divisor for rewards (auto: reference cost)", 0.0, None, True, auto=True)
+    reward_offset: Any = setting(AUTO, "float", "cost subtracted before scaling (auto: reference cost)", None, None, auto=True)
+    max_order_units: Any = setting(AUTO, "int", "largest order the agent may place (auto: demand quantile)", 1, None, auto=True)
+    position_cap: Any = setting(AUTO, "int", "largest inventory position after ordering (auto: from the instance, 0: none)", 0, None, auto=True)
+    order_quantile: float = setting(0.9999, "float", "demand quantile giving the automatic order bound", 0.5, 1.0, True)
+    episode_length: int = setting(500, "int", "periods per training episode", 1, 10**7)
+    eval_every: Any = setting(AUTO, "int", "training steps between learning-curve points (auto: 20 points)", 1, None, auto=True)
+    eval_replications: int = setting(32, "int", "replications of each learning-curve evaluation", 1, 10**6)
+    eval_periods: int = setting(1000, "int", "measured periods per replication", 1, 10**7)
+    eval_warmup: int = setting(100, "int", "periods discarded before measuring", 0, 10**7)
+    eval_seed: int = setting(20_240_601, "int", "seed of the common random numbers of the learning curve", 0, 2**63 - 1)
+    curve_exact: bool = setting(True, "bool", "also evaluate learning-curve points exactly when the chain is small")
+    curve_exact_max_states: int = setting(200_000, "int", "state budget of those exact evaluations", 1, 10**8)
+    checkpoint_every: Any = setting(AUTO, "int", "training steps between checkpoints (auto: 5 per run, 0: none)", 0, None, auto=True)
+    progress: bool = setting(True, "bool", "show a progress bar")
 
 
 @dataclass
 class SB3Settings(CommonSettings):
     """Settings of the stable-baselines3 agents; `auto` picks the agent's own default."""
 
-    n_envs: Any = _f(AUTO, "int", "copies stepped together in the batch simulator", 1, 100_000, auto=True)
-    learning_rate: Any = _f(AUTO, "float", "optimiser step size", 0.0, 1.0, True, auto=True)
-    gamma: float = _f(0.99, "float", "discount of the training objective", 0.0, 1.0, True)
-    n_steps: Any = _f(AUTO, "int", "steps per env per rollout", 1, 10**6, auto=True, agents=("ppo", "a2c"))
-    batch_size: int = _f(512, "int", "minibatch size", 1, 10**7, agents=("ppo", "dqn"))
-    n_epochs: int = _f(10, "int", "passes over each rollout", 1, 1000, agents=("ppo",))
-    gae_lambda: Any = _f(AUTO, "float", "GAE lambda", 0.0, 1.0, auto=True, agents=("ppo", "a2c"))
-    clip_range: float = _f(0.2, "float", "PPO clip range", 0.0, 1.0, True, agents=("ppo",))
-    ent_coef: float = _f(0.0, "float", "entropy bonus", 0.0, 1.0, agents=("ppo", "a2c"))
-    vf_coef: float = _f(0.5, "float", "value loss weight", 0.0, 100.0, agents=("ppo", "a2c"))
-    max_grad_norm: float = _f(0.5, "float", "gradient clipping norm", 0.0, None, True, agents=("ppo", "a2c"))
-    buffer_size: int = _f(200_000, "int", "replay buffer size", 1, 10**8, agents=("dqn",))
-    learning_starts: int = _f(5_000, "int", "steps before the first update", 0, 10**9, agents=("dqn",))
-    exploration_fraction: float = _f(0.3, "float", "share of training with decaying epsilon", 0.0, 1.0, agents=("dqn",))
-    exploration_final_eps: float = _f(0.02, "float", "final epsilon", 0.0, 1.0, agents=("dqn",))
-    target_update_interval: int = _f(2_000, "int", "steps between target-network updates", 1, 10**9, agents=("dqn",))
-    train_freq: int = _f(4, "int", "env steps (per copy) between updates", 1, 10**6, agents=("dqn",))
-    gradient_steps: int = _f(4, "int", "gradient steps per update", 1, 10**4, agents=("dqn",))
+    n_envs: Any = setting(AUTO, "int", "copies stepped together in the batch simulator", 1, 100_000, auto=True)
+    learning_rate: Any = setting(AUTO, "float", "optimiser step size", 0.0, 1.0, True, auto=True)
+    gamma: float = setting(0.99, "float", "discount of the training objective", 0.0, 1.0, True)
+    n_steps: Any = setting(AUTO, "int", "steps per env per rollout", 1, 10**6, auto=True, agents=("ppo", "a2c"))
+    batch_size: int = setting(512, "int", "minibatch size", 1, 10**7, agents=("ppo", "dqn"))
+    n_epochs: int = setting(10, "int", "passes over each rollout", 1, 1000, agents=("ppo",))
+    gae_lambda: Any = setting(AUTO, "float", "GAE lambda", 0.0, 1.0, auto=True, agents=("ppo", "a2c"))
+    clip_range: float = setting(0.2, "float", "PPO clip range", 0.0, 1.0, True, agents=("ppo",))
+    ent_coef: float = setting(0.0, "float", "entropy bonus", 0.0, 1.0, agents=("ppo", "a2c"))
+    vf_coef: float = setting(0.5, "float", "value loss weight", 0.0, 100.0, agents=("ppo", "a2c"))
+    max_grad_norm: float = setting(0.5, "float", "gradient clipping norm", 0.0, None, True, agents=("ppo", "a2c"))
+    buffer_size: int = setting(200_000, "int", "replay buffer size", 1, 10**8, agents=("dqn",))
+    learning_starts: int = setting(5_000, "int", "steps before the first update", 0, 10**9, agents=("dqn",))
+    exploration_fraction: float = setting(0.3, "float", "share of training with decaying epsilon", 0.0, 1.0, agents=("dqn",))
+    exploration_final_eps: float = setting(0.02, "float", "final epsilon", 0.0, 1.0, agents=("dqn",))
+    target_update_interval: int = setting(2_000, "int", "steps between target-network updates", 1, 10**9, agents=("dqn",))
+    train_freq: int = setting(4, "int", "env steps (per copy) between updates", 1, 10**6, agents=("dqn",))
+    gradient_steps: int = setting(4, "int", "gradient steps per update", 1, 10**4, agents=("dqn",))
 
 
 # Per-agent choices for the `auto` fields, measured on the classic lost-sales grid (see README).

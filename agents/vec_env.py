@@ -42,6 +42,7 @@ class InventorySB3VecEnv(VecEnv):
             if n_actions > len(self.inner.order_sizes_units):
                 raise ValueError("scaling: more actions than the instance's legal orders")
         self._pending: np.ndarray | None = None
+        self._raw = np.zeros((num_envs, n), dtype=np.float32)
         self._ep_reward = np.zeros(num_envs)
         self._ep_cost = np.zeros(num_envs)
         self._ep_len = 0
@@ -62,6 +63,7 @@ class InventorySB3VecEnv(VecEnv):
     def reset(self) -> np.ndarray:
         seed = self._seeds[0]
         raw, _ = self.inner.reset(seed=seed)
+        self._raw = raw
         self._reset_seeds()
         self._ep_reward[:] = 0.0
         self._ep_cost[:] = 0.0
@@ -78,7 +80,11 @@ class InventorySB3VecEnv(VecEnv):
             raise RuntimeError("step_wait called without step_async")
         if actions.min() < 0 or actions.max() >= self.action_space.n:
             raise ValueError(f"actions: must be integers in [0, {self.action_space.n - 1}]")
+        if self.scaling is not None and self.scaling.position_cap > 0:
+            # the cap is part of the action's meaning: same rule as LearnedPolicy.act
+            actions = self.scaling.orders(self._raw, actions) // self.scaling.case_pack
         raw, neg_cost, terminated, truncated, info = self.inner.step(actions)
+        self._raw = raw
         cost = -np.asarray(neg_cost, dtype=np.float64)
         reward = self._reward(cost)
         self._ep_reward += reward

@@ -1,0 +1,65 @@
+"""Building stable-baselines3 agents on the batch simulator, and taking their greedy network out.
+
+PPO and A2C act by the argmax of the actor's logits, DQN by the argmax of its Q-values; either
+chain of linear layers is copied into a `PolicyNet` so the export never depends on SB3's files.
+"""
+from __future__ import annotations
+
+from typing import Any
+
+from torch import nn
+
+from invbench.envs.spec import InstanceSpec
+
+from .learned_policy import LearnedPolicy
+from .network import ACTIVATIONS, from_linears
+from .scaling import Scaling
+from .settings import SB3Settings
+from .vec_env import InventorySB3VecEnv
+
+
+def make_model(agent: str, spec: InstanceSpec, settings: SB3Settings, scaling: Scaling, seed: int) -> Any:
+    """An SB3 model of `agent` on the batch simulator, seeded, CPU only."""
+    from stable_baselines3 import A2C, DQN, PPO
+
+    env = InventorySB3VecEnv(spec, int(settings.n_envs), scaling, episode_length=settings.episode_length, seed=seed)
+    act_fn = ACTIVATIONS[settings.activation]
+    hidden = list(settings.hidden)
+    s = settings
+    if agent == "ppo":
+        return PPO("MlpPolicy", env, learning_rate=s.learning_rate, n_steps=s.n_steps, batch_size=s.batch_size,
+                   n_epochs=s.n_epochs, gamma=s.gamma, gae_lambda=s.gae_lambda, clip_range=s.clip_range,
+                   ent_coef=s.ent_coef, vf_coef=s.vf_coef, max_grad_norm=s.max_grad_norm,
+                   policy_kwargs=dict(net_arch=dict(pi=hidden, vf=hidden), activation_fn=act_fn),
+                   seed=seed, device="cpu", verbose=0)
+    if agent == "a2c":
+        return A2C("MlpPolicy", env, learning_rate=s.learning_rate, n_steps=s.n_steps, gamma=s.gamma,
+                   gae_lambda=s.gae_lambda, ent_coef=s.ent_coef, vf_coef=s.vf_coef, max_grad_norm=s.max_grad_norm,
+                   policy_kwargs=dict(net_arch=dict(pi=hidden, vf=hidden), activation_fn=act_fn),
+                   seed=seed, device="cpu", verbose=0)
+    if agent == "dqn":
+        return DQN("MlpPolicy", env, learning_rate=s.learning_rate, buffer_size=s.buffer_size,
+                   learning_starts=s.learning_starts, batch_size=s.batch_size, gamma=s.gamma,
+                   train_freq=s.train_freq, gradient_steps=s.gradient_steps,
+                   target_update_interval=s.target_update_interval, exploration_fraction=s.exploration_fraction,
+                   exploration_final_eps=s.exploration_final_eps,
+                   policy_kwargs=dict(net_arch=hidden, activation_fn=act_fn), seed=seed, device="cpu", verbose=0)
+    raise ValueError(f"unknown SB3 agent {agent!r}")
+
+
+def _linears(seq: nn.Module) -> list[nn.Linear]:
+    return [m for m in seq.modules() if isinstance(m, nn.Linear)]
+
+
+def extract_policy(model: Any, agent: str, spec: InstanceSpec, settings: SB3Settings, scaling: Scaling) -> LearnedPolicy:
+    """The model's greedy policy as a LearnedPolicy (weights copied, SB3 no longer needed)."""
+    pol = model.policy
+    if agent in ("ppo", "a2c"):
+        layers = _linears(pol.mlp_extractor.policy_net) + [pol.action_net]
+        head = "logits"
+    else:
+        layers = _linears(pol.q_net.q_net)
+        head = "q_values"
+    net = from_linears(layers, settings.activation, head)
+    return LearnedPolicy(spec, scaling, net, agent=agent)
+
