@@ -4,7 +4,10 @@
     spec = invbench.load_spec("instance.toml")
     opt = invbench.solve(spec)
     ev = invbench.evaluate(spec, my_policy, optimum=opt)
+    run = invbench.train(spec, agent="ppo", steps=100_000, seed=0, out="runs/ppo")
 """
+from typing import Any
+
 from invbench.envs import Demand, InstanceSpec, SpecError, load_spec
 from invbench.envs.registration import register_envs
 
@@ -14,5 +17,13 @@ from invbench.api import Evaluation, SolveResult, evaluate, make_env, policies, 
 
 __version__ = "0.1.0"
 
-__all__ = ["Demand", "Evaluation", "InstanceSpec", "SolveResult", "SpecError", "evaluate", "load_spec",
-           "make_env", "policies", "solve", "__version__"]
+__all__ = ["Demand", "Evaluation", "InstanceSpec", "SolveResult", "SpecError", "evaluate", "load_policy",
+           "load_spec", "make_env", "policies", "solve", "train", "__version__"]
+
+
+def __getattr__(name: str) -> Any:
+    # Training needs torch; load it only when asked, so `import invbench` stays light.
+    if name in ("train", "load_policy"):
+        import invbench.agents as agents
+        return getattr(agents, name)
+    raise AttributeError(f"module 'invbench' has no attribute {name!r}")
