@@ -61,6 +61,8 @@ def _bench(args: argparse.Namespace) -> int:
         return 0
     if not args.suite:
         raise SpecError("suite: required (a TOML file or a packaged suite name; see --list)")
+    if args.backend not in ("local", "ray"):
+        raise SpecError(f"--backend: must be one of local, ray, got {args.backend!r}")
     if args.workers is not None and args.workers < 1:
         raise SpecError(f"--workers: must be >= 1, got {args.workers}")
     from .runner import run_bench
