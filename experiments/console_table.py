@@ -24,7 +24,7 @@ def _params(raw: Any) -> str:
     return ", ".join(f"{k}={v}" for k, v in d.items() if k != "agent")
 
 
-def format_tables(df: pd.DataFrame, width: int = 30) -> list[str]:
+def format_tables(df: pd.DataFrame, width: int = 32) -> list[str]:
     """Lines: for each instance, policy | parameters | cost | 95% CI | gap | method."""
     lines: list[str] = []
     for inst, g in df.groupby("instance", sort=False):
