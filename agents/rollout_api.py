@@ -139,6 +139,19 @@ def rollout_q(spec: InstanceSpec, act: Any, states: np.ndarray, sizes: np.ndarra
     return total.reshape(N, K, M).mean(axis=2)
 
 
+def _train_epochs(net: PolicyNet, n: int, loss: Any, s: RolloutSettings, gen: torch.Generator) -> None:
+    """Adam over `s.epochs` shuffled passes of minibatches; `loss(idx)` gives a minibatch's loss."""
+    opt = torch.optim.Adam(net.parameters(), lr=s.learning_rate)
+    net.train()
+    for _ in range(s.epochs):
+        perm = torch.randperm(n, generator=gen)
+        for i in range(0, n, s.batch_size):
+            opt.zero_grad()
+            loss(perm[i:i + s.batch_size]).backward()
+            opt.step()
+    net.eval()
+
+
 def fit_regressor(net: PolicyNet, x: np.ndarray, adv: np.ndarray, mask: np.ndarray, s: RolloutSettings,
                   gen: torch.Generator) -> float:
     """Least-squares fit of the net's outputs to minus the advantages (masked candidates left out).
@@ -147,18 +160,13 @@ def fit_regressor(net: PolicyNet, x: np.ndarray, adv: np.ndarray, mask: np.ndarr
     an argmin label taken from them is biased towards whichever candidate had lucky paths.
     Returns the share of states whose fitted argmax equals the rollout argmin.
     """
-    opt = torch.optim.Adam(net.parameters(), lr=s.learning_rate)
     X, T, W = torch.from_numpy(x), torch.from_numpy(-adv.astype(np.float32)), torch.from_numpy(mask.astype(np.float32))
-    net.train()
-    for _ in range(s.epochs):
-        perm = torch.randperm(len(X), generator=gen)
-        for i in range(0, len(X), s.batch_size):
-            idx = perm[i:i + s.batch_size]
-            opt.zero_grad()
-            err = (net(X[idx]) - T[idx]) ** 2 * W[idx]
-            (err.sum() / W[idx].sum().clamp(min=1.0)).backward()
-            opt.step()
-    net.eval()
+
+    def loss(idx: torch.Tensor) -> torch.Tensor:
+        err = (net(X[idx]) - T[idx]) ** 2 * W[idx]
+        return err.sum() / W[idx].sum().clamp(min=1.0)
+
+    _train_epochs(net, len(X), loss, s, gen)
     with torch.no_grad():
         out = net(X).masked_fill(W == 0, -torch.inf)
         return float((out.argmax(dim=1) == T.masked_fill(W == 0, -torch.inf).argmax(dim=1)).float().mean())
@@ -166,18 +174,9 @@ def fit_regressor(net: PolicyNet, x: np.ndarray, adv: np.ndarray, mask: np.ndarr
 
 def fit_classifier(net: PolicyNet, x: np.ndarray, y: np.ndarray, s: RolloutSettings, gen: torch.Generator) -> float:
     """Cross-entropy fit of `net` to labels `y`; returns the final training accuracy."""
-    opt = torch.optim.Adam(net.parameters(), lr=s.learning_rate)
     loss_fn = nn.CrossEntropyLoss()
     X, Y = torch.from_numpy(x), torch.from_numpy(y)
-    net.train()
-    for _ in range(s.epochs):
-        perm = torch.randperm(len(X), generator=gen)
-        for i in range(0, len(X), s.batch_size):
-            idx = perm[i:i + s.batch_size]
-            opt.zero_grad()
-            loss_fn(net(X[idx]), Y[idx]).backward()
-            opt.step()
-    net.eval()
+    _train_epochs(net, len(X), lambda idx: loss_fn(net(X[idx]), Y[idx]), s, gen)
     with torch.no_grad():
         return float((net(X).argmax(dim=1) == Y).float().mean())
 

@@ -293,7 +293,6 @@ class Comparison:
 def compare_results(new: pd.DataFrame, ref: pd.DataFrame, rtol_exact: float = 2e-6) -> Comparison:
     """Exact cells: |new - ref| <= rtol_exact * |ref|. Simulated cells: within the 95 % interval of
     the difference of two independent estimates, sqrt(ci_new^2 + ci_ref^2)."""
-    key = ["instance", "policy", "seed"]
 
     def index(df: pd.DataFrame) -> dict[tuple, Any]:
         ok = df[df["status"] == "ok"] if "status" in df.columns else df

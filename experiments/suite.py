@@ -248,11 +248,7 @@ def _instances(v: Any, base_dir: Path) -> tuple[InstanceSpec, ...]:
         d = _table(raw, where)
         for spec in _expand(d, where, base_dir):
             out.append(spec)
-    seen: set[str] = set()
-    for s in out:
-        if s.label in seen:
-            raise SpecError(f"instances: name {s.label!r} is used twice; give each instance its own name")
-        seen.add(s.label)
+    _check_unique(out, "instances: name {!r} is used twice; give each instance its own name")
     return tuple(out)
 
 
@@ -312,16 +308,21 @@ def _set_field(inst: dict[str, Any], key: str, val: Any, where: str) -> None:
     node[parts[-1]] = val
 
 
+def _check_unique(items: list[Any], message: str) -> None:
+    """SpecError with `message` (one {!r} for the label) when two items share a label."""
+    seen: set[str] = set()
+    for item in items:
+        if item.label in seen:
+            raise SpecError(message.format(item.label))
+        seen.add(item.label)
+
+
 def _policies(v: Any, default_seeds: tuple[int, ...]) -> tuple[PolicyEntry, ...]:
     if not isinstance(v, list) or not v:
         raise SpecError("policies: need at least one [[policies]] entry")
     out = [_policy(_table(raw, f"policies[{i}]"), f"policies[{i}]", default_seeds)
            for i, raw in enumerate(v)]
-    seen: set[str] = set()
-    for p in out:
-        if p.label in seen:
-            raise SpecError(f"policies: label {p.label!r} is used twice; set `label` to tell them apart")
-        seen.add(p.label)
+    _check_unique(out, "policies: label {!r} is used twice; set `label` to tell them apart")
     return tuple(out)
 
 
