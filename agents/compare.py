@@ -68,14 +68,15 @@ def compare_with_optimal(spec: Any, policy: Any, solved: Any = None, *, top: int
     ev = evaluate_exact(spec, policy)
     pi = ev.stationary_distribution()
     states = ev.index.states
-    mine = ev.orders
-    best = np.asarray(solved.policy.act(states.astype(np.float32)), dtype=np.int64)
-    differ = mine != best
+    mine = ev.orders  # [S, k]
+    best = np.asarray(solved.policy.act(states.astype(np.float32)), dtype=np.int64).reshape(mine.shape)
+    differ = np.any(mine != best, axis=1)
     note = ""
     regret = None
     uncovered = 0.0
     worst: list[dict[str, Any]] = []
     if solved.representation == "lost_sales" and solved.criterion == "average" and solved.values is not None:
+        mine, best = mine[:, 0], best[:, 0]
         idx = np.flatnonzero(differ)
         q_mine, cov_a = _q_values(spec, solved, states[idx], mine[idx])
         q_best, cov_b = _q_values(spec, solved, states[idx], best[idx])

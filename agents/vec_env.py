@@ -15,7 +15,7 @@ import numpy as np
 from gymnasium import spaces
 from stable_baselines3.common.vec_env import VecEnv
 
-from invbench.envs.base_env import OBS_LIMIT
+from invbench.envs.inventory_env import OBS_LIMIT
 from invbench.envs.spec import InstanceSpec
 from invbench.envs.vector_env import InventoryVectorEnv
 

@@ -13,13 +13,13 @@ import numpy as np
 from scipy.sparse.csgraph import breadth_first_order
 
 from invbench.envs.errors import SpecError
+from invbench.envs.models.exact_space import Bounds, ExactSpace
 from invbench.envs.spec import InstanceSpec, load_spec
 
+from invbench.envs.checks import check_choice, check_number
 from .iteration import (IterationOutcome, discounted_policy_iteration, discounted_value_iteration,
                         relative_value_iteration)
-from .mdp import FiniteMDP, build_mdp, check_budget, estimate_size
-from .mdp_fast import build_lost_sales_fast
-from .state_space import Bounds, initial_bounds
+from .mdp import FiniteMDP, build_mdp, check_budget
 from .table_policy import TablePolicy
 
 DEFAULT_MAX_STATES = 3_000_000
@@ -61,7 +61,7 @@ class SolveResult:
             "iterations": self.iterations, "seconds": self.seconds, "states": self.states,
             "pairs": self.pairs, "truncation_mass": self.truncation_mass, "method": self.method,
             "criterion": self.criterion, "representation": self.representation,
-            "bounds": {"upper": self.bounds.upper, "lower": self.bounds.lower},
+            "bounds": self.bounds.to_dict(),
             "widenings": self.widenings, "converged": self.converged, "notes": list(self.notes),
         }
 
@@ -70,15 +70,6 @@ def reachable_states(mdp: FiniteMDP, choice: np.ndarray) -> np.ndarray:
     """States reachable from the start state when the pairs `choice` are used."""
     P = mdp.P[choice]
     return np.sort(breadth_first_order(P, mdp.start, directed=True, return_predecessors=False))
-
-
-def _binding(spec: InstanceSpec, mdp: FiniteMDP, choice: np.ndarray) -> tuple[bool, bool]:
-    reach = reachable_states(mdp, choice)
-    ch = choice[reach]
-    orders = mdp.pair_order[ch]
-    up = bool(np.any(mdp.at_upper[ch] & (orders > 0) & (orders + spec.case_pack <= spec.order_cap_units)))
-    down = bool(np.any(mdp.clip_mass[ch] > 1e-12))
-    return up, down
 
 
 def _run(mdp: FiniteMDP, spec: InstanceSpec, method: str, rel_tol: float, on_iter: Any) -> IterationOutcome:
@@ -92,6 +83,17 @@ def _run(mdp: FiniteMDP, spec: InstanceSpec, method: str, rel_tol: float, on_ite
     return relative_value_iteration(mdp, rel_tol, on_iter=on_iter)
 
 
+def exact_space(spec: InstanceSpec, full_pipeline: bool = False) -> ExactSpace:
+    """The model's exact space (for backorders, optionally the full pipeline state)."""
+    model = spec.model_def
+    if full_pipeline:
+        if spec.model != "backorder":
+            raise SpecError("full_pipeline: only for the backorder model (which otherwise solves on "
+                            "the inventory position)")
+        return model.exact_space(spec, full_pipeline=True)  # type: ignore[call-arg]
+    return model.exact_space(spec)
+
+
 def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states: int = DEFAULT_MAX_STATES,
           max_memory_mb: float = DEFAULT_MAX_MEMORY_MB, full_pipeline: bool = False,
           bounds: Bounds | None = None, fast: bool = True, progress: bool = False) -> SolveResult:
@@ -101,30 +103,28 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     (HiGHS, tiny instances), "value_iteration" or "policy_iteration" (discounted only).
     full_pipeline: for backorders, solve on the full pipeline state instead of the inventory
     position (for checking that reduction; far larger).
-    fast: build lost-sales transitions by the structured path (same numbers, much quicker);
+    fast: use the model's structured build where it has one (same numbers, much quicker);
     False uses the straightforward build, stepping every (state, order, demand).
     """
     spec = load_spec(spec)
-    if method not in METHODS:
-        raise SpecError(f"method: must be one of {', '.join(METHODS)}, got {method!r}")
-    if not (0 < rel_tol < 1):
-        raise SpecError(f"rel_tol: must be in (0, 1), got {rel_tol}")
+    check_choice("method", method, METHODS)
+    rel_tol = check_number("rel_tol", rel_tol, 0.0, 1.0, lo_open=True, hi_open=True)
+    max_states = int(check_number("max_states", max_states, 1, None, integer=True))
+    max_memory_mb = check_number("max_memory_mb", max_memory_mb, 0.0, None, lo_open=True)
     if spec.discount < 1 and method in ("rvi", "lp"):
         raise SpecError(f"method: {method} is for the average-cost criterion (discount = 1)")
     if spec.discount == 1 and method in ("value_iteration", "policy_iteration"):
         raise SpecError(f"method: {method} is for the discounted criterion (discount < 1)")
     t0 = time.perf_counter()
-    b = bounds or initial_bounds(spec)
+    space = exact_space(spec, full_pipeline)
+    b = bounds or space.initial_bounds()
     notes: list[str] = []
     total_iter = 0
     bar = None
     for widen in range(MAX_WIDENINGS + 1):
-        est = estimate_size(spec, b, full_pipeline)
+        est = space.estimate(b)
         check_budget(est, max_states, int(max_memory_mb * 2**20))
-        if fast and spec.model == "lost_sales":
-            mdp = build_lost_sales_fast(spec, b)
-        else:
-            mdp = build_mdp(spec, b, full_pipeline=full_pipeline)
+        mdp = (space.fast_build(b) if fast else None) or build_mdp(space, b)
         on_iter = None
         if progress:
             from tqdm import tqdm
@@ -138,19 +138,20 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
         if bar is not None:
             bar.close()
         total_iter += out.iterations
-        up, down = _binding(spec, mdp, out.choice)
+        up, down = space.binding(mdp, out.choice[reachable_states(mdp, out.choice)])
         if not (up or down):
             break
-        b = b.widened(spec, up, down)
+        b = space.widen(b, up, down)
     else:
         notes.append(f"state-space bounds still bind after {MAX_WIDENINGS} widenings; optimum may be cut off")
-    orders = mdp.pair_order[out.choice]
+    actions = mdp.pair_action[out.choice]
     if not out.converged:
         notes.append("iteration limit reached before the bounds met the tolerance")
     reach = reachable_states(mdp, out.choice)
-    if np.any(orders[reach] == spec.order_cap_units) and spec.order_cap_units < b.upper:
-        notes.append(f"the order cap of {spec.order_cap_units} units is reached in reachable states")
-    policy = TablePolicy(spec, mdp.representation, mdp.index, orders, b)
+    caps = np.array([s.cap_units for s in spec.order_slots])
+    if np.any(actions[reach] == caps[None, :]):
+        notes.append(f"an order cap ({', '.join(map(str, caps))} units) is reached in reachable states")
+    policy = TablePolicy(spec, space, mdp.index, actions, b)
     used = method if method != "auto" else ("rvi" if spec.discount == 1 else "value_iteration")
     return SolveResult(out.value, out.lower, out.upper, policy, total_iter, time.perf_counter() - t0,
                        mdp.n_states, mdp.n_pairs, mdp.truncation_mass, used,

@@ -1,4 +1,4 @@
-"""The Policy contract: `act(obs[B, n]) -> orders[B]` in units.
+"""The Policy contract: `act(obs[B, n]) -> orders[B]` (or [B, k] with k order slots) in units.
 
 Analytic policies, DP tables and trained networks all satisfy it, so evaluators never ask what
 they hold. `as_policy` wraps a plain callable (a user's network, an SB3 model's predict) too.
@@ -8,6 +8,8 @@ from __future__ import annotations
 from typing import Any, Callable, Protocol, runtime_checkable
 
 import numpy as np
+
+from invbench.envs.errors import SpecError
 
 
 @runtime_checkable
@@ -47,10 +49,10 @@ class CallablePolicy(PolicyBase):
         out = self.fn(obs)
         if isinstance(out, tuple):  # e.g. SB3 `predict` returns (actions, states)
             out = out[0]
-        arr = np.asarray(out).reshape(-1)
-        if arr.shape[0] != obs.shape[0]:
-            raise ValueError(f"policy: returned {arr.shape[0]} orders for {obs.shape[0]} observations")
-        return np.rint(arr).astype(np.int64)
+        arr = np.asarray(out)
+        if arr.ndim == 0 or arr.shape[0] != obs.shape[0]:
+            raise SpecError(f"policy: returned {arr.size} orders for {obs.shape[0]} observations")
+        return arr  # checked (not rounded) by the evaluator
 
     def describe(self) -> str:
         return self.label
@@ -66,7 +68,49 @@ def as_policy(obj: Any) -> Policy:
 
 
 def legal_orders(spec: Any, orders: np.ndarray) -> np.ndarray:
-    """Round orders down to a case-pack multiple and clip into [0, order cap] (units)."""
+    """A policy's own projection: round orders down to a case-pack multiple and clip into
+    [0, order cap] (units). Classical policies use it to define their orders; evaluators do not
+    (they call `checked_orders`, which refuses instead of changing an order)."""
     q = spec.case_pack
     o = np.clip(np.asarray(orders, dtype=np.int64), 0, spec.order_cap_units)
     return (o // q) * q
+
+
+def checked_orders(spec: Any, orders: Any, states: np.ndarray, *, clip: bool = False) -> tuple[np.ndarray, int]:
+    """Orders [B, k] in units as a policy returned them, checked against the legal sizes.
+
+    By default an order that is negative, not a whole number, NaN, off the case pack or over
+    the cap is refused with the state and the value (SpecError). With clip=True it is moved to
+    the nearest legal size at or below it instead, and the count of changed orders is returned,
+    so the caller can say so.
+    """
+    slots = spec.order_slots
+    k = len(slots)
+    B = len(states)
+    try:
+        raw = np.asarray(orders, dtype=np.float64).reshape(B, k)
+    except (TypeError, ValueError):
+        raise SpecError(f"policy: must return {k} order(s) in units per state for {B} states, "
+                        f"got shape {list(np.shape(orders))}") from None
+    out = np.empty((B, k), dtype=np.int64)
+    changed = np.zeros(B, dtype=bool)
+    for j, slot in enumerate(slots):
+        x = raw[:, j]
+        sizes = slot.sizes_units
+        finite = np.isfinite(x)
+        xi = np.where(finite, np.rint(x), -1).astype(np.int64)
+        pos = np.searchsorted(sizes, xi)
+        exact = finite & (x == np.rint(x)) & (pos < len(sizes)) & (sizes[np.minimum(pos, len(sizes) - 1)] == xi)
+        if not np.all(exact):
+            if not clip:
+                r = int(np.argmin(exact))
+                step = sizes[1] - sizes[0] if len(sizes) > 1 else 1
+                raise SpecError(
+                    f"policy: order {x[r]!r} ({slot.name}) in state {list(map(int, states[r]))} is not a legal size "
+                    f"(multiples of {step} in [0, {slot.cap_units}]); pass clip=True to round it to one")
+            fixed = np.where(finite, x, 0.0)
+            idx = np.searchsorted(sizes, np.floor(fixed), side="right") - 1
+            xi = sizes[np.clip(idx, 0, len(sizes) - 1)]
+            changed |= ~exact
+        out[:, j] = xi
+    return out, int(changed.sum())

@@ -14,13 +14,15 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
-from invbench.envs.dynamics import initial_state, step_fn
+from invbench.envs.checks import check_number
 from invbench.envs.errors import BudgetError
+from invbench.envs.inventory_env import check_start
+from invbench.envs.models.state_index import StateCodec, StateIndex
 from invbench.envs.spec import InstanceSpec, load_spec
 
+from .expectation import expected_step
 from .iteration import TAU
-from .policy import as_policy, legal_orders
-from .state_index import StateCodec, StateIndex
+from .policy import as_policy, checked_orders
 
 DEFAULT_MAX_STATES = 2_000_000
 _CHUNK = 200_000
@@ -31,9 +33,7 @@ class ExactEvaluation:
     cost: float
     lower: float
     upper: float
-    holding: float
-    shortage: float
-    ordering: float
+    parts: dict[str, float]  # expected cost per period by named part (holding, shortage, ...)
     states: int
     seconds: float
     criterion: str
@@ -41,11 +41,12 @@ class ExactEvaluation:
     method: str = "exact"
     index: StateIndex | None = field(default=None, repr=False)
     P: sp.csr_matrix | None = field(default=None, repr=False)
-    state_costs: np.ndarray | None = field(default=None, repr=False)  # [S, 3] holding, shortage, ordering
+    state_costs: np.ndarray | None = field(default=None, repr=False)  # [S, parts] by named part
     orders: np.ndarray | None = field(default=None, repr=False)
     start: int = 0
     truncated_mass: float = 0.0  # long-run share of periods where the far-stock truncation acted
     truncated_at: int | None = None
+    clipped_orders: int = 0  # orders moved to a legal size (only when asked to clip)
     _pi: np.ndarray | None = field(default=None, repr=False)
 
     def stationary_distribution(self, tol: float = 1e-13, max_iter: int = 200_000) -> np.ndarray:
@@ -63,12 +64,19 @@ class ExactEvaluation:
             self._pi = pi / pi.sum()
         return self._pi
 
+    def __getattr__(self, key: str) -> float:
+        # cost parts read as attributes (ev.holding), whatever parts the model has
+        parts = self.__dict__.get("parts") or {}
+        if key in parts:
+            return parts[key]
+        raise AttributeError(key)
+
     def to_dict(self) -> dict[str, Any]:
-        return {"cost": self.cost, "lower": self.lower, "upper": self.upper, "holding": self.holding,
-                "shortage": self.shortage, "ordering": self.ordering, "states": self.states,
-                "seconds": self.seconds, "criterion": self.criterion,
-                "truncation_mass": self.truncation_mass, "truncated_mass": self.truncated_mass,
-                "truncated_at": self.truncated_at, "method": self.method}
+        return {"cost": self.cost, "lower": self.lower, "upper": self.upper, **self.parts,
+                "states": self.states, "seconds": self.seconds, "criterion": self.criterion,
+                "demand_tail_dropped": self.truncation_mass, "far_stock_share": self.truncated_mass,
+                "truncated_at": self.truncated_at, "clipped_orders": self.clipped_orders,
+                "method": self.method}
 
 
 def _stock_limit(spec: InstanceSpec) -> int:
@@ -79,67 +87,90 @@ def _stock_limit(spec: InstanceSpec) -> int:
     positive probability (a constant order below mean demand lets stock creep up through runs
     of low demand) have an infinite reachable set that no finite chain holds.
     """
-    from .state_space import initial_bounds
-    b = initial_bounds(spec)
-    return int(4 * (b.upper - b.lower + spec.order_cap_units) + 100)
+    b = spec.model_def.exact_space(spec).initial_bounds()
+    cap = sum(s.cap_units for s in spec.order_slots)
+    return int(4 * (b.upper - b.lower + cap) + 100)
 
 
 class _Unbounded(BudgetError):
     pass
 
 
-def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
-            max_states: int = DEFAULT_MAX_STATES, truncate_at: int | None = None
-            ) -> tuple[StateIndex, sp.csr_matrix, np.ndarray, np.ndarray, int]:
-    """Reachable states of `policy`, their transition matrix, expected cost parts and orders.
+@dataclass
+class ReachableChain:
+    """The reachable states of a policy, their transitions, expected cost parts and orders."""
 
-    With `truncate_at` = X the chain is kept finite: no order is placed at stock >= X, and net
-    inventory below -X is clipped to -X. The returned cost array then has a 4th column, the
+    index: StateIndex
+    P: sp.csr_matrix
+    costs: np.ndarray  # [S, parts] (+1 column: truncation probability, when truncated)
+    cost_names: tuple[str, ...]
+    orders: np.ndarray  # [S, k]
+    start: int
+    clipped: int
+
+
+def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
+            max_states: int = DEFAULT_MAX_STATES, truncate_at: int | None = None,
+            clip: bool = False) -> ReachableChain:
+    """Reachable states of `policy` from `start`, breadth first, with the one expectation step.
+
+    With `truncate_at` = X the chain is kept finite: no order is placed at stock >= X, and a
+    signed stock level below -X is clipped to -X. The cost array then has one more column, the
     probability per state that this truncation changed what happens (its long-run average is
     the truncated mass).
     """
     pol = as_policy(policy)
-    step = step_fn(spec)
+    model = spec.model_def
     n = spec.state_dim
-    codec = StateCodec(n, spec.order_cap_units)
+    codec = StateCodec(n, max(s.cap_units for s in spec.order_slots))
     pmf = spec.demand.pmf().normalized()
-    dvals = np.flatnonzero(pmf > 0)
-    dprob = pmf[dvals]
     limit = _stock_limit(spec)
-    s0 = initial_state(spec) if start is None else np.asarray(start, dtype=np.int64).reshape(1, n)
+    s0 = check_start(spec, start)
     known = codec.encode(s0)
     frontier = s0
     all_states, all_orders, all_costs = [], [], []
     from_keys, to_keys, probs = [], [], []
+    names: tuple[str, ...] = ()
+    clipped_total = 0
     total = 1
-    while len(frontier):
-        for lo in range(0, len(frontier), _CHUNK):
-            block = frontier[lo:lo + _CHUNK]
-            orders = legal_orders(spec, pol.act(block.astype(np.float32)))
-            paused = np.zeros(len(block), dtype=bool)
-            if truncate_at is not None:
-                paused = (block[:, 0] >= truncate_at) & (orders > 0)
-                orders = np.where(paused, 0, orders)
-            rows = np.repeat(np.arange(len(block)), len(dvals))
-            nxt, parts = step(block[rows], orders[rows], np.tile(dvals, len(block)))
-            w = np.tile(dprob, len(block))
-            cols = [np.bincount(rows, weights=w * p, minlength=len(block))
-                    for p in (parts.holding, parts.shortage, parts.ordering)]
-            if truncate_at is not None:
-                clipped = nxt[:, 0] < -truncate_at
-                nxt[:, 0] = np.maximum(nxt[:, 0], -truncate_at)
-                cols.append(paused + np.bincount(rows, weights=w * clipped, minlength=len(block)))
-            elif np.abs(nxt[:, 0]).max(initial=0) > limit:
+
+    def step(s: np.ndarray, a: np.ndarray, d: np.ndarray):
+        return model.step(spec, s, a, d)
+
+    def clip_far(nxt: np.ndarray) -> np.ndarray:
+        if truncate_at is None:
+            if np.abs(nxt[:, 0]).max(initial=0) > limit:
                 raise _Unbounded(f"exact evaluation: the policy can reach stock levels beyond +-{limit:,} "
                                  "with positive probability")
-            cost = np.stack(cols, axis=1)
+            return np.zeros(len(nxt), dtype=bool)
+        below = nxt[:, 0] < -truncate_at
+        nxt[:, 0] = np.maximum(nxt[:, 0], -truncate_at)
+        return below
+
+    while len(frontier):
+        new_keys = []
+        for lo in range(0, len(frontier), _CHUNK):
+            block = frontier[lo:lo + _CHUNK]
+            orders, nclip = checked_orders(spec, pol.act(block.astype(np.float32)), block, clip=clip)
+            clipped_total += nclip
+            paused = np.zeros(len(block), dtype=bool)
+            if truncate_at is not None:
+                paused = (block[:, 0] >= truncate_at) & (orders.sum(axis=1) > 0)
+                orders = np.where(paused[:, None], 0, orders)
+            ex = expected_step(step, block, orders, pmf, clip_far, codec.encode)
+            names = ex.cost_names
+            cost = ex.costs
+            if truncate_at is not None:
+                cost = np.column_stack([cost, paused + ex.clip_mass])
             all_states.append(block)
             all_orders.append(orders)
             all_costs.append(cost)
-            from_keys.append(np.repeat(codec.encode(block), len(dvals)))
-            to_keys.append(codec.encode(nxt))
-            probs.append(w)
-        cand = np.unique(to_keys_since(to_keys, frontier))
+            keys = codec.encode(block)
+            from_keys.append(keys[ex.rows])
+            to_keys.append(ex.cols)
+            probs.append(ex.probs)
+            new_keys.append(ex.cols)
+        cand = np.unique(np.concatenate(new_keys))
         new = cand[~np.isin(cand, known, assume_unique=True)]
         total += len(new)
         if total > max_states:
@@ -151,24 +182,17 @@ def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
     perm = index.lookup(np.concatenate(all_states))  # position of each stored row in the index
     costs = np.empty((len(index), all_costs[0].shape[1]))
     costs[perm] = np.concatenate(all_costs)
-    orders = np.empty(len(index), dtype=np.int64)
+    orders = np.empty((len(index), len(spec.order_slots)), dtype=np.int64)
     orders[perm] = np.concatenate(all_orders)
     rows = index.lookup_keys(np.concatenate(from_keys))
     cols = index.lookup_keys(np.concatenate(to_keys))
     P = sp.csr_matrix((np.concatenate(probs), (rows, cols)), shape=(len(index), len(index)))
     P.sum_duplicates()
-    start_idx = int(index.lookup(s0)[0])
-    return index, P, costs, orders, start_idx
+    return ReachableChain(index, P, costs, names, orders, int(index.lookup(s0)[0]), clipped_total)
 
 
-def to_keys_since(to_keys: list[np.ndarray], frontier: np.ndarray) -> np.ndarray:
-    """Keys of the next states produced while processing the current frontier."""
-    n_blocks = -(-len(frontier) // _CHUNK)
-    return np.concatenate(to_keys[-n_blocks:])
-
-
-def _average(P: sp.csr_matrix, costs: np.ndarray, start: int, rel_tol: float, max_iter: int) -> tuple[np.ndarray, np.ndarray, bool]:
-    c = np.column_stack([costs[:, :3].sum(axis=1), costs])
+def _average(P: sp.csr_matrix, costs: np.ndarray, n_parts: int, start: int, rel_tol: float, max_iter: int) -> tuple[np.ndarray, np.ndarray, bool]:
+    c = np.column_stack([costs[:, :n_parts].sum(axis=1), costs])
     h = np.zeros_like(c)
     lo = hi = np.zeros(c.shape[1])
     for _ in range(max_iter):
@@ -182,9 +206,9 @@ def _average(P: sp.csr_matrix, costs: np.ndarray, start: int, rel_tol: float, ma
     return lo, hi, False
 
 
-def _discounted(P: sp.csr_matrix, costs: np.ndarray, start: int, beta: float, rel_tol: float,
+def _discounted(P: sp.csr_matrix, costs: np.ndarray, n_parts: int, start: int, beta: float, rel_tol: float,
                 max_iter: int) -> tuple[np.ndarray, np.ndarray, bool]:
-    c = np.column_stack([costs[:, :3].sum(axis=1), costs])
+    c = np.column_stack([costs[:, :n_parts].sum(axis=1), costs])
     v = np.zeros_like(c)
     k = beta / (1 - beta)
     lo = hi = np.zeros(c.shape[1])
@@ -200,30 +224,34 @@ def _discounted(P: sp.csr_matrix, costs: np.ndarray, start: int, beta: float, re
 
 def evaluate_exact(spec: Any, policy: Any, *, start: np.ndarray | None = None, rel_tol: float = 1e-9,
                    max_states: int = DEFAULT_MAX_STATES, max_iter: int = 200_000,
-                   max_truncated_mass: float = 1e-9) -> ExactEvaluation:
+                   max_truncated_mass: float = 1e-9, clip: bool = False) -> ExactEvaluation:
     """Exact long-run average (or discounted, from the start state) cost of `policy` on `spec`.
 
     A policy that can drift to very high stock (or backlog) with positive probability — a
     constant order lets stock creep up through runs of low demand — has an infinite reachable
     set. It is then evaluated on a chain truncated at a far stock level (`explore`), and the
     result is accepted only if the long-run probability that the truncation acts is at most
-    `max_truncated_mass`; it is reported as `truncated_mass`.
+    `max_truncated_mass`; it is reported as `truncated_mass`. Orders that are not legal sizes
+    are refused unless clip=True (then counted in `clipped_orders`).
     Raises BudgetError when the reachable state space is too large or the policy unstable.
     """
     spec = load_spec(spec)
+    rel_tol = check_number("rel_tol", rel_tol, 0.0, 1.0, lo_open=True, hi_open=True)
+    max_states = int(check_number("max_states", max_states, 1, None, integer=True))
     t0 = time.perf_counter()
     truncate_at = None
     try:
-        index, P, costs, orders, s = explore(spec, policy, start, max_states)
+        ch = explore(spec, policy, start, max_states, clip=clip)
     except _Unbounded:
         truncate_at = _stock_limit(spec)
-        index, P, costs, orders, s = explore(spec, policy, start, max_states, truncate_at=truncate_at)
+        ch = explore(spec, policy, start, max_states, truncate_at=truncate_at, clip=clip)
         max_iter = min(max_iter, 20_000)  # a drifting chain settles slowly; simulation is the better tool
+    k = len(ch.cost_names)
     if spec.discount < 1:
-        lo, hi, ok = _discounted(P, costs, s, spec.discount, rel_tol, max_iter)
+        lo, hi, ok = _discounted(ch.P, ch.costs, k, ch.start, spec.discount, rel_tol, max_iter)
         crit = "discounted"
     else:
-        lo, hi, ok = _average(P, costs, s, rel_tol, max_iter)
+        lo, hi, ok = _average(ch.P, ch.costs, k, ch.start, rel_tol, max_iter)
         crit = "average"
     if not ok:
         raise BudgetError("exact evaluation: the bounds did not meet (the policy may have several "
@@ -231,11 +259,14 @@ def evaluate_exact(spec: Any, policy: Any, *, start: np.ndarray | None = None, r
     mid = 0.5 * (lo + hi)
     truncated = 0.0
     if truncate_at is not None:
-        truncated = float(max(hi[4], 0.0)) if crit == "average" else float(max(hi[4], 0.0) * (1 - spec.discount))
+        t = float(max(hi[k + 1], 0.0))
+        truncated = t if crit == "average" else t * (1 - spec.discount)
         if truncated > max_truncated_mass:
             raise BudgetError(f"exact evaluation: the policy spends a long-run share {truncated:.1e} of periods "
                               f"beyond stock +-{truncate_at:,} (unstable, or far too much stock) — use simulation")
-    return ExactEvaluation(float(mid[0]), float(lo[0]), float(hi[0]), float(mid[1]), float(mid[2]),
-                           float(mid[3]), len(index), time.perf_counter() - t0, crit,
-                           spec.demand.pmf().truncation_mass, index=index, P=P, state_costs=costs[:, :3],
-                           orders=orders, start=s, truncated_mass=truncated, truncated_at=truncate_at)
+    parts = {name: float(mid[1 + j]) for j, name in enumerate(ch.cost_names)}
+    return ExactEvaluation(float(mid[0]), float(lo[0]), float(hi[0]), parts, len(ch.index),
+                           time.perf_counter() - t0, crit, spec.demand.pmf().truncation_mass,
+                           index=ch.index, P=ch.P, state_costs=ch.costs[:, :k], orders=ch.orders,
+                           start=ch.start, truncated_mass=truncated, truncated_at=truncate_at,
+                           clipped_orders=ch.clipped)

@@ -11,7 +11,7 @@ def policy_structure(result: SolveResult) -> dict:
     mdp = result.mdp
     reach = reachable_states(mdp, _choice(result))
     states = mdp.states[reach]
-    orders = result.policy.orders[reach]
+    orders = result.policy.orders[reach].sum(axis=1)
     pos = states.sum(axis=1)
     out: dict = {"reachable_states": int(len(reach))}
     ordering = orders > 0
@@ -50,7 +50,7 @@ def summarize(result: SolveResult, max_rows: int = 12) -> list[str]:
     mdp = result.mdp
     reach = reachable_states(mdp, _choice(result))
     pos = mdp.states[reach].sum(axis=1)
-    orders = result.policy.orders[reach]
+    orders = result.policy.orders[reach].sum(axis=1)
     lines.append(f"reachable states under the optimal policy: {len(reach):,} of {mdp.n_states:,}")
     lines.append("inventory position -> optimal order (units), min..max over reachable states:")
     levels = np.unique(pos)
@@ -60,4 +60,6 @@ def summarize(result: SolveResult, max_rows: int = 12) -> list[str]:
         o = orders[pos == y]
         rng = f"{o.min()}" if o.min() == o.max() else f"{o.min()}..{o.max()}"
         lines.append(f"  {int(y):>6} -> {rng}")
+    if result.policy.orders.shape[1] > 1:
+        lines.append("(several orders per period: the total is shown)")
     return lines

@@ -5,24 +5,26 @@ from typing import Any
 
 import numpy as np
 
+from invbench.envs.errors import SpecError
+from invbench.envs.models.exact_space import Bounds, ExactSpace
+from invbench.envs.models.state_index import StateIndex
 from invbench.envs.spec import InstanceSpec
 
 from .policy import PolicyBase
-from .state_index import StateIndex
-from .state_space import Bounds
 
 
 class TablePolicy(PolicyBase):
-    """Orders looked up per state. Off the table the rule is explicit (see `act`)."""
+    """Orders looked up per state; off the table the model's exact space says what happens."""
 
     name = "optimal"
 
-    def __init__(self, spec: InstanceSpec, representation: str, index: StateIndex, orders: np.ndarray,
+    def __init__(self, spec: InstanceSpec, space: ExactSpace, index: StateIndex, orders: np.ndarray,
                  bounds: Bounds) -> None:
         self.spec = spec
-        self.representation = representation
+        self.space = space
+        self.representation = space.representation
         self.index = index
-        self.orders = np.asarray(orders, dtype=np.int64)
+        self.orders = np.asarray(orders, dtype=np.int64).reshape(len(index), -1)  # [S, k]
         self.bounds = bounds
 
     @property
@@ -30,30 +32,22 @@ class TablePolicy(PolicyBase):
         return self.index.states
 
     def act(self, obs: np.ndarray) -> np.ndarray:
-        """Orders in units for a batch of observations.
-
-        Off the table: a position above the upper bound orders nothing (the bound is an upper
-        limit on the optimal position after ordering); for backorders, a position below the
-        lower bound orders what the lowest state orders plus the shortfall, in whole packs.
-        """
-        x = np.rint(np.asarray(obs, dtype=np.float64)).astype(np.int64)
+        """Orders in units for a batch of observations ([B], or [B, k] with several order slots)."""
+        x = np.asarray(obs, dtype=np.float64)
         if x.ndim == 1:
             x = x[None, :]
-        if self.representation == "backorder_position":
-            y = x.sum(axis=1)
-            lo, hi = self.bounds.lower, self.bounds.upper
-            idx = np.clip(y, lo, hi) - lo
-            out = self.orders[idx].copy()
-            below = y < lo
-            q = self.spec.case_pack
-            out[below] += -((y[below] - lo) // q) * q
-            out[y > hi] = 0
-            return np.minimum(out, self.spec.order_cap_units)
-        pos = self.index.lookup(x)
-        out = np.zeros(len(x), dtype=np.int64)
-        found = pos >= 0
-        out[found] = self.orders[pos[found]]
-        return out
+        n = self.spec.state_dim
+        if x.ndim != 2 or x.shape[1] != n:
+            raise SpecError(f"state: must have {n} entries per row, got shape {list(x.shape)}")
+        if not np.all(np.isfinite(x)) or np.any(x != np.rint(x)):
+            raise SpecError("state: entries must be whole numbers (units)")
+        states = x.astype(np.int64)
+        low = self.spec.model_def.state_low(self.spec)
+        if np.any(states < low):
+            bad = states[np.argmax(np.any(states < low, axis=1))]
+            raise SpecError(f"state: {list(map(int, bad))} has an entry below its minimum {list(low)}")
+        out = self.space.table_orders(self.index, self.orders, self.bounds, states)
+        return out[:, 0] if out.shape[1] == 1 else out
 
     def params(self) -> dict[str, Any]:
         return {"states": len(self.index)}

@@ -16,27 +16,34 @@ import tomli_w
 
 from .demand import Demand
 from .errors import SpecError
+from .models import MODELS, Field, InventoryModel, OrderSlot, get_model
 
-MODELS = ("lost_sales", "backorder")
 #: Tables a spec file may hold; only [instance] is read here, the others by their own parts.
 TOP_LEVEL_TABLES = ("instance", "agent")
+#: Costs above this are refused: sums of a few thousand such terms must stay finite and exact
+#: enough in float64 (common practice: rescale money units instead).
+COST_LIMIT = 1e12
 
-# key -> (type, lower bound, lower open?, upper bound, description)
-_FIELDS: dict[str, tuple[type, float | None, bool, float | None, str]] = {
-    "lead_time": (int, 0, False, 50, "periods between ordering and arrival"),
-    "holding_cost": (float, 0.0, False, None, "per unit of end-of-period stock"),
-    "shortage_cost": (float, 0.0, False, None, "per unit lost / backordered per period"),
-    "unit_order_cost": (float, 0.0, False, None, "per unit ordered"),
-    "fixed_order_cost": (float, 0.0, False, None, "per period with a positive order"),
-    "max_order": (int, 0, True, 100000, "largest order in units"),
-    "case_pack": (int, 1, False, 100000, "legal orders are multiples of this many units"),
-    "discount": (float, 0.0, True, 1.0, "1.0 = long-run average cost, < 1 = discounted"),
+#: Keys every single-item model shares; a model declares its own in its folder.
+COMMON_FIELDS: dict[str, Field] = {
+    "lead_time": Field(int, 0, "periods between ordering and arrival", 0, 50),
+    "holding_cost": Field(float, 1.0, "per unit of end-of-period stock", 0.0, COST_LIMIT),
+    "shortage_cost": Field(float, 9.0, "per unit lost / backordered per period", 0.0, COST_LIMIT),
+    "unit_order_cost": Field(float, 0.0, "per unit ordered", 0.0, COST_LIMIT),
+    "fixed_order_cost": Field(float, 0.0, "per period with a positive order", 0.0, COST_LIMIT),
+    "max_order": Field(int, None, "largest order in units", 0, 100000, lo_open=True, optional=True),
+    "case_pack": Field(int, 1, "legal orders are multiples of this many units", 1, 100000),
+    "discount": Field(float, 1.0, "1.0 = long-run average cost, < 1 = discounted", 0.0, 1.0, lo_open=True),
 }
 
 
 @dataclass(frozen=True)
 class InstanceSpec:
-    """A periodic-review single-item inventory instance. Orders are in units."""
+    """A periodic-review inventory instance. Orders are in units.
+
+    The common keys are fields; a model's own keys (e.g. `shelf_life`) live in `extra` and read
+    as attributes too (`spec.shelf_life`). Build from a dict with `spec_from_dict`.
+    """
 
     model: str
     demand: Demand
@@ -49,18 +56,27 @@ class InstanceSpec:
     case_pack: int = 1
     discount: float = 1.0
     name: str = ""
+    extra: Any = ()
     _max_order_units: int = field(init=False, repr=False, compare=False, default=0)
 
     def __post_init__(self) -> None:
-        if self.model not in MODELS:
-            raise SpecError(f"instance.model: must be one of {', '.join(MODELS)}, got {self.model!r}")
+        model = get_model(self.model)
         if not isinstance(self.demand, Demand):
             raise SpecError("instance.demand: must be a demand table")
-        for key, (typ, lo, lo_open, hi, _) in _FIELDS.items():
+        for key, f in COMMON_FIELDS.items():
             v = getattr(self, key)
-            if key == "max_order" and v is None:
+            if key in model.unused_common:
+                if v != f.default:
+                    raise SpecError(f"instance.{key}: not used by the {model.name} model (leave it out)")
                 continue
-            object.__setattr__(self, key, _check(f"instance.{key}", v, typ, lo, lo_open, hi))
+            object.__setattr__(self, key, check_field(f"instance.{key}", v, f))
+        extra = dict(self.extra) if not isinstance(self.extra, tuple) else dict(self.extra)
+        for k in extra:
+            if k not in model.fields:
+                allowed = sorted({"name", "model", "demand", *COMMON_FIELDS, *model.fields} - set(model.unused_common))
+                raise SpecError(f"instance.{k}: unknown key for the {model.name} model (allowed: {', '.join(allowed)})")
+        checked = {k: check_field(f"instance.{k}", extra.get(k, f.default), f) for k, f in model.fields.items()}
+        object.__setattr__(self, "extra", tuple(sorted(checked.items())))
         if not isinstance(self.name, str):
             raise SpecError(f"instance.name: must be a string, got {self.name!r}")
         cap = self.max_order if self.max_order is not None else default_max_order(self.demand, self.lead_time)
@@ -69,8 +85,21 @@ class InstanceSpec:
             raise SpecError(
                 f"instance.max_order: must be >= case_pack ({self.case_pack}), got {cap}")
         object.__setattr__(self, "_max_order_units", int(cap_units))
-        if self.model == "lost_sales" and self.shortage_cost <= 0 and self.holding_cost <= 0:
-            raise SpecError("instance.shortage_cost: must be > 0 when holding_cost is 0")
+        model.check(self)
+
+    def __getattr__(self, key: str) -> Any:
+        # only called when normal lookup fails: the model's own keys
+        if key.startswith("_") or key == "extra":
+            raise AttributeError(key)
+        for k, v in object.__getattribute__(self, "extra"):
+            if k == key:
+                return v
+        raise AttributeError(f"instance has no key {key!r}")
+
+    @property
+    def model_def(self) -> InventoryModel:
+        """The model object (its step function, layout and exact space)."""
+        return get_model(self.model)
 
     # ------------------------------------------------------------------ derived facts
     @property
@@ -79,14 +108,19 @@ class InstanceSpec:
         return self._max_order_units
 
     @property
+    def order_slots(self) -> list[OrderSlot]:
+        """The order quantities placed each period, with their legal sizes in units."""
+        return self.model_def.order_slots(self)
+
+    @property
     def order_sizes_units(self) -> np.ndarray:
-        """All legal order sizes in units: 0, q, 2q, ... up to the cap."""
-        return np.arange(0, self.order_cap_units + 1, self.case_pack, dtype=np.int64)
+        """Legal sizes of the first (for most models the only) order: 0, q, 2q, ... up to the cap."""
+        return self.order_slots[0].sizes_units
 
     @property
     def state_dim(self) -> int:
-        """Length of the state vector: on-hand/net inventory plus the L - 1 orders still in transit."""
-        return max(self.lead_time, 1)
+        """Length of the state vector (the model's layout)."""
+        return self.model_def.state_dim(self)
 
     @property
     def label(self) -> str:
@@ -95,8 +129,20 @@ class InstanceSpec:
         return (f"{self.model}-L{self.lead_time}-p{self.shortage_cost:g}-{self.demand.describe()}")
 
     def with_(self, **changes: Any) -> "InstanceSpec":
-        """A copy with some fields changed (validated again)."""
-        return replace(self, **changes)
+        """A copy with some fields changed (validated again); a model's own keys too."""
+        extra = dict(self.extra)
+        model = get_model(changes.get("model", self.model))
+        for k in list(changes):
+            if k not in COMMON_FIELDS and k not in ("model", "demand", "name", "extra"):
+                extra[k] = changes.pop(k)
+        extra = {k: v for k, v in extra.items() if k in model.fields}
+        return replace(self, extra=tuple(extra.items()), **changes)
+
+    def content_key(self) -> dict[str, Any]:
+        """The instance without its name: two specs with equal keys are the same problem."""
+        d = self.to_dict()
+        d.pop("name", None)
+        return d
 
     # ------------------------------------------------------------------ (de)serialisation
     def to_dict(self) -> dict[str, Any]:
@@ -104,10 +150,12 @@ class InstanceSpec:
         if self.name:
             d["name"] = self.name
         d["model"] = self.model
-        for key in _FIELDS:
+        unused = self.model_def.unused_common
+        for key in COMMON_FIELDS:
             v = getattr(self, key)
-            if v is not None:
+            if v is not None and key not in unused:
                 d[key] = v
+        d.update(dict(self.extra))
         d["demand"] = self.demand.to_dict()
         return d
 
@@ -128,31 +176,32 @@ def default_max_order(demand: Demand, lead_time: int) -> int:
     return max(2 * demand.pmf().support_max, 1)
 
 
-def _check(name: str, v: Any, typ: type, lo: float | None, lo_open: bool, hi: float | None) -> Any:
-    if isinstance(v, bool):
-        raise SpecError(f"{name}: must be {'an integer' if typ is int else 'a number'}, got {v!r}")
-    if typ is int:
-        if isinstance(v, (float, np.floating)) and float(v).is_integer():
+def check_field(name: str, v: Any, f: Field) -> Any:
+    """The value of one key, converted to the field's type, or SpecError naming the key and range."""
+    if f.optional and v is None:
+        return None
+    if f.choices:
+        if not isinstance(v, str) or v not in f.choices:
+            raise SpecError(f"{name}: must be {f.range_text()}, got {v!r}")
+        return v
+    if isinstance(v, (bool, np.bool_)):
+        raise SpecError(f"{name}: must be {f.range_text()}, got {v!r}")
+    if f.type is int:
+        if isinstance(v, (float, np.floating)) and math.isfinite(v) and float(v).is_integer():
             v = int(v)
         if not isinstance(v, (int, np.integer)):
-            raise SpecError(f"{name}: must be an integer, got {v!r}")
+            raise SpecError(f"{name}: must be {f.range_text()}, got {v!r}")
         v = int(v)
     else:
         if not isinstance(v, (int, float, np.integer, np.floating)):
-            raise SpecError(f"{name}: must be a number, got {v!r}")
+            raise SpecError(f"{name}: must be {f.range_text()}, got {v!r}")
         v = float(v)
         if not math.isfinite(v):
-            raise SpecError(f"{name}: must be finite, got {v}")
-    ok_lo = lo is None or (v > lo if lo_open else v >= lo)
-    ok_hi = hi is None or v <= hi
+            raise SpecError(f"{name}: must be {f.range_text()} (finite), got {v}")
+    ok_lo = f.lo is None or (v > f.lo if f.lo_open else v >= f.lo)
+    ok_hi = f.hi is None or v <= f.hi
     if not (ok_lo and ok_hi):
-        if lo is not None and hi is not None:
-            rng = f"in {'(' if lo_open else '['}{lo:g}, {hi:g}]"
-        elif lo is not None:
-            rng = f"{'>' if lo_open else '>='} {lo:g}"
-        else:
-            rng = f"<= {hi:g}"
-        raise SpecError(f"{name}: must be {rng}, got {v:g}")
+        raise SpecError(f"{name}: must be {f.range_text()}, got {v:g}")
     return v
 
 
@@ -169,12 +218,14 @@ def spec_from_dict(d: Mapping[str, Any]) -> InstanceSpec:
         if not isinstance(d, Mapping):
             raise SpecError("instance: must be a table")
     d = dict(d)
-    allowed = {"name", "model", "demand", *_FIELDS}
-    for k in d:
-        if k not in allowed:
-            raise SpecError(f"instance.{k}: unknown key (allowed: {', '.join(sorted(allowed))})")
     if "model" not in d:
         raise SpecError(f"instance.model: required, one of {', '.join(MODELS)}")
+    model = get_model(d["model"])
+    allowed = {"name", "model", "demand", *COMMON_FIELDS, *model.fields} - set(model.unused_common)
+    for k in d:
+        if not isinstance(k, str) or k not in allowed:
+            raise SpecError(f"instance.{k}: unknown key for the {model.name} model "
+                            f"(allowed: {', '.join(sorted(allowed))})")
     if "demand" not in d:
         raise SpecError("instance.demand: required table, e.g. {distribution = \"poisson\", mean = 5}")
     demand = d.pop("demand")
@@ -182,7 +233,8 @@ def spec_from_dict(d: Mapping[str, Any]) -> InstanceSpec:
         dem = demand
     else:
         dem = Demand.from_dict(demand)
-    return InstanceSpec(demand=dem, **d)
+    extra = {k: d.pop(k) for k in list(d) if k in model.fields}
+    return InstanceSpec(demand=dem, extra=tuple(extra.items()), **d)
 
 
 def load_spec(source: str | Path | Mapping[str, Any] | InstanceSpec) -> InstanceSpec:
@@ -195,7 +247,9 @@ def load_spec(source: str | Path | Mapping[str, Any] | InstanceSpec) -> Instance
     if not path.is_file():
         raise SpecError(f"spec file: {str(path)!r} does not exist or is not a file")
     try:
-        data = tomllib.loads(path.read_text())
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except UnicodeDecodeError:
+        raise SpecError(f"spec file: {path} is not UTF-8 text") from None
     except tomllib.TOMLDecodeError as e:
         raise SpecError(f"spec file: {path} is not valid TOML ({e})") from None
     if "instance" not in data:

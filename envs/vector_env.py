@@ -15,9 +15,8 @@ from gymnasium import spaces
 from gymnasium.vector import AutoresetMode, VectorEnv
 from gymnasium.vector.utils import batch_space
 
-from .base_env import DEFAULT_EPISODE_LENGTH, OBS_LIMIT, resolve_spec
-from .dynamics import initial_state, step_fn
-from .errors import SpecError
+from .actions import ActionCodec
+from .inventory_env import DEFAULT_EPISODE_LENGTH, check_count, observation_space, resolve_spec
 
 
 class InventoryVectorEnv(VectorEnv):
@@ -27,45 +26,36 @@ class InventoryVectorEnv(VectorEnv):
 
     def __init__(self, num_envs: int = 1, model: str = "lost_sales", spec: Any = None,
                  episode_length: int = DEFAULT_EPISODE_LENGTH, **overrides: Any) -> None:
-        if isinstance(num_envs, bool) or not isinstance(num_envs, (int, np.integer)) or num_envs < 1:
-            raise SpecError(f"num_envs: must be an integer >= 1, got {num_envs!r}")
-        if isinstance(episode_length, bool) or not isinstance(episode_length, (int, np.integer)) or episode_length < 1:
-            raise SpecError(f"episode_length: must be an integer >= 1, got {episode_length!r}")
+        self.num_envs = check_count("num_envs", num_envs)
+        self.episode_length = check_count("episode_length", episode_length)
         self.spec_ = resolve_spec(model, spec, **overrides)
-        self.num_envs = int(num_envs)
-        self.episode_length = int(episode_length)
-        self._step = step_fn(self.spec_)
+        self._model = self.spec_.model_def
+        self._codec = ActionCodec(self.spec_)
         self.order_sizes_units = self.spec_.order_sizes_units
-        n = self.spec_.state_dim
-        low = np.zeros(n, dtype=np.float32)
-        if self.spec_.model == "backorder":
-            low[0] = -OBS_LIMIT
-        self.single_observation_space = spaces.Box(low, np.full(n, OBS_LIMIT, dtype=np.float32), (n,), np.float32)
-        self.single_action_space = spaces.Discrete(len(self.order_sizes_units))
+        self.single_observation_space = observation_space(self.spec_)
+        self.single_action_space = self._codec.space
         self.observation_space = batch_space(self.single_observation_space, self.num_envs)
         self.action_space = batch_space(self.single_action_space, self.num_envs)
         self._rng = np.random.default_rng()
-        self._state = initial_state(self.spec_, self.num_envs)
+        self._state = self._model.start_state(self.spec_, self.num_envs)
         self._t = 0
 
     def reset(self, *, seed: int | None = None, options: dict | None = None) -> tuple[np.ndarray, dict]:
         if seed is not None:
             self._rng = np.random.default_rng(seed)
-        self._state = initial_state(self.spec_, self.num_envs)
+        self._state = self._model.start_state(self.spec_, self.num_envs)
         self._t = 0
         return self._state.astype(np.float32), {}
 
     def step(self, actions: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, dict]:
-        a = np.asarray(actions, dtype=np.int64).reshape(self.num_envs)
-        if a.min() < 0 or a.max() >= len(self.order_sizes_units):
-            raise SpecError(f"actions: must be integers in [0, {len(self.order_sizes_units) - 1}]")
-        order = self.order_sizes_units[a]
+        order = self._codec.orders(actions, self.num_envs)
         demand = self.spec_.demand.sample(self._rng, self.num_envs)
-        self._state, parts = self._step(self._state, order, demand)
+        self._state, parts = self._model.step(self.spec_, self._state, order, demand)
         self._t += 1
         cost = parts.total
-        infos: dict[str, Any] = {"demand": demand, "order_units": order, "holding_cost": parts.holding,
-                                 "shortage_cost": parts.shortage, "ordering_cost": parts.ordering}
+        infos: dict[str, Any] = {"demand": demand, "order_units": order[:, 0] if order.shape[1] == 1 else order}
+        infos.update({f"{k}_cost": v for k, v in parts.costs.items()})
+        infos.update(parts.flows)
         done = self._t >= self.episode_length
         truncated = np.full(self.num_envs, done)
         obs = self._state.astype(np.float32)

@@ -4,8 +4,6 @@ import pytest
 
 from invbench import solve
 from invbench.baselines.mdp import build_mdp
-from invbench.baselines.mdp_fast import build_lost_sales_fast
-from invbench.baselines.state_space import initial_bounds
 from tests.conftest import lost_sales
 
 
@@ -14,8 +12,9 @@ from tests.conftest import lost_sales
     lost_sales(3, 9.0, unit_order_cost=1.0), lost_sales(2, 9.0, case_pack=3, fixed_order_cost=2.0),
 ], ids=["L0-K-pack", "L1", "L2-cap", "L3-c", "L2-pack-K"])
 def test_fast_build_equals_straightforward_build(spec):
-    b = initial_bounds(spec)
-    slow, fast = build_mdp(spec, b), build_lost_sales_fast(spec, b)
+    space = spec.model_def.exact_space(spec)
+    b = space.initial_bounds()
+    slow, fast = build_mdp(space, b), space.fast_build(b)
     assert np.array_equal(slow.states, fast.states)
     assert np.array_equal(slow.pair_order, fast.pair_order)
     assert abs(slow.P - fast.P).max() <= 1e-15

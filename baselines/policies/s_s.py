@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from invbench.baselines.lead_time_cost import lead_time_cost
+from invbench.envs.models.backorder.lead_time_cost import lead_time_cost
 from invbench.baselines.policy import legal_orders
 from invbench.envs.errors import SpecError
 from invbench.envs.spec import InstanceSpec

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from invbench.baselines.lead_time_cost import lead_time_cost
+from invbench.envs.models.backorder.lead_time_cost import lead_time_cost
 from invbench.envs.errors import BudgetError
 from invbench.envs.spec import InstanceSpec
 

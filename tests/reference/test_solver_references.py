@@ -85,9 +85,9 @@ def test_discounted_value_iteration_equals_policy_iteration():
 def test_bounds_that_bind_are_widened_until_the_optimum_is_inside(spec):
     # Start from bounds far too tight: the a-posteriori check must widen them and reach the
     # same certified optimum (Zipkin 2008 value for the lost-sales case, from memory: 6.09).
-    from invbench.baselines.state_space import Bounds, initial_bounds
+    from invbench.envs.models.exact_space import Bounds
     normal = solve(spec)
-    b0 = initial_bounds(spec)
+    b0 = spec.model_def.exact_space(spec).initial_bounds()
     tight = Bounds(upper=max(b0.upper // 3, 2), lower=min(-1, b0.lower // 3))
     res = solve(spec, bounds=tight)
     assert res.widenings >= 1

@@ -1,7 +1,7 @@
 """Integer keys for state vectors, so sets of states can be sorted, merged and looked up in numpy.
 
-Coordinate 0 (stock level, may be negative under backorders) gets an offset; pipeline
-coordinates are orders, hence in [0, order cap]. Keys are a mixed-radix code in int64 with the
+Coordinate 0 (stock level, may be negative under backorders) gets an offset; the other
+coordinates are non-negative and bounded (stock by age, orders in transit). Keys are a mixed-radix code in int64 with the
 stock level as the *least* significant digit: in a sorted index, states that differ only in
 stock level are then neighbours, which the fast solver path relies on.
 """

@@ -1,7 +1,7 @@
 """Gymnasium env of the periodic-review lost-sales model (id `invbench/LostSales-v0`)."""
 from __future__ import annotations
 
-from .base_env import InventoryEnv
+from invbench.envs.inventory_env import InventoryEnv
 
 
 class LostSalesEnv(InventoryEnv):

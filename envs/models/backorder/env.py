@@ -1,7 +1,7 @@
 """Gymnasium env of the periodic-review backorder model (id `invbench/Backorder-v0`)."""
 from __future__ import annotations
 
-from .base_env import InventoryEnv
+from invbench.envs.inventory_env import InventoryEnv
 
 
 class BackorderEnv(InventoryEnv):

@@ -11,26 +11,29 @@ equals `mdp.build_mdp` (the straightforward path) on small instances.
 """
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 import scipy.sparse as sp
 
-from invbench.envs.dynamics import step_fn
-from invbench.envs.spec import InstanceSpec
+from ..exact_space import Bounds
 
-from .mdp import FiniteMDP, enumerate_pairs
-from .state_index import StateCodec, StateIndex
-from .state_space import Bounds, lost_sales_states
+if TYPE_CHECKING:
+    from invbench.baselines.mdp import FiniteMDP
+    from .model import LostSalesSpace
 
 
-def build_lost_sales_fast(spec: InstanceSpec, bounds: Bounds) -> FiniteMDP:
-    if spec.model != "lost_sales":
-        raise ValueError("build_lost_sales_fast: lost-sales model only")
-    n = spec.state_dim
-    codec = StateCodec(n, max(spec.order_cap_units, bounds.upper))
-    index = StateIndex(codec, lost_sales_states(n, bounds.upper))
+def build_fast(space: "LostSalesSpace", bounds: Bounds) -> "FiniteMDP":
+    from invbench.baselines.mdp import FiniteMDP
+
+    spec = space.spec
+    index = space.index(bounds)
     states = index.states
-    pair_state, pair_order, pair_start, at_upper = enumerate_pairs(spec, states, bounds)
-    step = step_fn(spec)
+    pair_state, pair_action, pair_start, at_upper = space.pairs(states, bounds)
+    pair_order = pair_action[:, 0]
+
+    def step(s: np.ndarray, a: np.ndarray, d: np.ndarray):  # the model's one step function
+        return space.model.step(spec, s, a, d)
 
     # (1) zero demand: received stock, shifted pipeline, ordering cost
     st = states[pair_state]
@@ -51,7 +54,7 @@ def build_lost_sales_fast(spec: InstanceSpec, bounds: Bounds) -> FiniteMDP:
     d_grid = np.tile(dvals, amax + 1)
     w = np.tile(pmf[dvals], amax + 1)
     small = spec.with_(lead_time=0, unit_order_cost=0.0, fixed_order_cost=0.0)
-    _, pd = step_fn(small)(a_grid[:, None], np.zeros_like(a_grid), d_grid)
+    _, pd = space.model.step(small, a_grid[:, None], np.zeros_like(a_grid), d_grid)
     M = np.zeros((amax + 1, amax + 1))
     np.add.at(M, (a_grid, pd.end_level), w)
     hold = np.bincount(a_grid, weights=w * pd.holding, minlength=amax + 1)
@@ -76,6 +79,7 @@ def build_lost_sales_fast(spec: InstanceSpec, bounds: Bounds) -> FiniteMDP:
     P = sp.csr_matrix((data, cols, indptr), shape=(len(pair_state), len(states)))
 
     cost_parts = np.column_stack([hold[avail], short[avail], parts0.ordering])
-    start = int(index.lookup(np.zeros((1, n), dtype=np.int64))[0])
-    return FiniteMDP("lost_sales", bounds, index, pair_state, pair_order, pair_start, cost_parts, P,
-                     np.zeros(len(pair_state)), at_upper, float(pmf_obj.truncation_mass), start)
+    start = int(index.lookup(space.start_state())[0])
+    return FiniteMDP(space.representation, bounds, index, pair_state, pair_action, pair_start,
+                     ("holding", "shortage", "ordering"), cost_parts, P, np.zeros(len(pair_state)),
+                     at_upper, float(pmf_obj.truncation_mass), start)

@@ -9,20 +9,22 @@ from __future__ import annotations
 
 import numpy as np
 
-from invbench.envs.dynamics import step_fn
-from invbench.envs.spec import InstanceSpec
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from invbench.envs.spec import InstanceSpec
 
 
-def lead_time_cost(spec: InstanceSpec, levels: np.ndarray) -> np.ndarray:
+def lead_time_cost(spec: "InstanceSpec", levels: np.ndarray) -> np.ndarray:
     """G(y) for each inventory position y in `levels` (backorder model), per period."""
     if spec.model != "backorder":
         raise ValueError("lead_time_cost: defined for the backorder model")
     levels = np.asarray(levels, dtype=np.int64).reshape(-1)
     pmf = spec.demand.lead_time_pmf(spec.lead_time + 1).normalized()
-    step = step_fn(spec.with_(lead_time=0, unit_order_cost=0.0, fixed_order_cost=0.0))
+    once = spec.with_(lead_time=0, unit_order_cost=0.0, fixed_order_cost=0.0)
     d = np.arange(len(pmf), dtype=np.int64)
     y = np.repeat(levels, len(d))
     dd = np.tile(d, len(levels))
-    _, parts = step(y[:, None], np.zeros_like(y), dd)
+    _, parts = once.model_def.step(once, y[:, None], np.zeros_like(y), dd)
     cost = (parts.holding + parts.shortage).reshape(len(levels), len(d))
     return cost @ pmf

@@ -1,0 +1,162 @@
+"""What a model is: the one object each model folder provides, and the pieces it is made of.
+
+Everything generic (the Gymnasium env and vector env, the exact solver's MDP build, exact policy
+evaluation, the batch simulator, the agents' scaling, the results columns, env registration)
+is written against `InventoryModel` and never asks which model it holds.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any, Sequence
+
+import numpy as np
+
+if TYPE_CHECKING:  # the spec imports the model registry; type-only import breaks the cycle
+    from invbench.envs.spec import InstanceSpec
+    from .exact_space import ExactSpace
+
+
+@dataclass(frozen=True)
+class Field:
+    """One spec key: its type, allowed range (or choices), default and meaning."""
+
+    type: type
+    default: Any
+    description: str
+    lo: float | None = None
+    hi: float | None = None
+    lo_open: bool = False
+    choices: tuple[str, ...] = ()
+    optional: bool = False  # None is allowed (the model derives a value)
+
+    def range_text(self) -> str:
+        if self.choices:
+            return "one of " + ", ".join(self.choices)
+        kind = "an integer" if self.type is int else "a number"
+        if self.lo is not None and self.hi is not None:
+            return f"{kind} in {'(' if self.lo_open else '['}{self.lo:g}, {self.hi:g}]"
+        if self.lo is not None:
+            return f"{kind} {'>' if self.lo_open else '>='} {self.lo:g}"
+        if self.hi is not None:
+            return f"{kind} <= {self.hi:g}"
+        return kind
+
+
+@dataclass
+class Outcome:
+    """What one period did to each row of a batch: named cost parts and named flows (units).
+
+    `costs` keys are the model's `cost_parts`; `flows` always has `sales` and the model's
+    shortfall flow. Attribute access (`outcome.holding`) reads either table.
+    """
+
+    costs: dict[str, np.ndarray]
+    flows: dict[str, np.ndarray] = field(default_factory=dict)
+
+    @property
+    def total(self) -> np.ndarray:
+        return sum(self.costs.values())  # type: ignore[return-value]
+
+    def __getattr__(self, key: str) -> np.ndarray:
+        if key in ("costs", "flows"):
+            raise AttributeError(key)
+        if key in self.costs:
+            return self.costs[key]
+        if key in self.flows:
+            return self.flows[key]
+        raise AttributeError(f"outcome has no part or flow {key!r}")
+
+
+@dataclass(frozen=True)
+class OrderSlot:
+    """One order quantity placed per period: its name and legal sizes in units (ascending)."""
+
+    name: str
+    sizes_units: np.ndarray
+
+    @property
+    def cap_units(self) -> int:
+        return int(self.sizes_units[-1])
+
+
+class InventoryModel:
+    """Base of every model. A subclass in its own folder fills in the class attributes and the
+    methods marked "model"; the rest is shared.
+
+    State rows are int64 vectors; actions are int64 arrays [B, k] of units, one column per
+    order slot; demand is int64 [B].
+    """
+
+    name: str = ""
+    env_id: str = ""
+    env_entry: str = ""  # "module:Class" of the documented Gymnasium env
+    title: str = ""
+    #: one paragraph on the timing within a period, for the README and the env docstring
+    timing: str = ""
+    #: model-specific spec keys (the common ones are in envs/spec.py)
+    fields: dict[str, Field] = {}
+    #: common spec keys this model does not use (refused when given)
+    unused_common: tuple[str, ...] = ()
+    cost_parts: tuple[str, ...] = ("holding", "shortage", "ordering")
+    #: the flow of unmet demand: "lost" or "backordered"
+    shortfall: str = "lost"
+    #: a negative first state coordinate is possible (net inventory)
+    signed_level: bool = False
+
+    # ------------------------------------------------------------------ model: layout
+    def check(self, spec: "InstanceSpec") -> None:
+        """Checks across fields (raise SpecError naming the field)."""
+
+    def state_labels(self, spec: "InstanceSpec") -> list[str]:  # model
+        raise NotImplementedError
+
+    def state_dim(self, spec: "InstanceSpec") -> int:
+        return len(self.state_labels(spec))
+
+    def state_low(self, spec: "InstanceSpec") -> np.ndarray:
+        """Smallest value of each state coordinate (-inf where it may be negative)."""
+        low = np.zeros(self.state_dim(spec))
+        if self.signed_level:
+            low[0] = -math.inf
+        return low
+
+    def order_slots(self, spec: "InstanceSpec") -> list[OrderSlot]:
+        """One slot: multiples of the case pack up to the cap (models with several override)."""
+        sizes = np.arange(0, spec.order_cap_units + 1, spec.case_pack, dtype=np.int64)
+        return [OrderSlot("order", sizes)]
+
+    def start_state(self, spec: "InstanceSpec", batch: int = 1) -> np.ndarray:
+        """The default start: no stock, nothing in transit."""
+        return np.zeros((batch, self.state_dim(spec)), dtype=np.int64)
+
+    def position(self, spec: "InstanceSpec", states: np.ndarray) -> np.ndarray:
+        """Inventory position: stock plus everything in transit."""
+        return np.asarray(states).sum(axis=1)
+
+    # ------------------------------------------------------------------ model: dynamics
+    def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
+             demand: np.ndarray) -> tuple[np.ndarray, Outcome]:  # model
+        """One period for a batch: (next state [B, n], outcome)."""
+        raise NotImplementedError
+
+    # ------------------------------------------------------------------ model: exact solver
+    def exact_space(self, spec: "InstanceSpec") -> "ExactSpace":  # model
+        """How the exact solver bounds, enumerates and widens this model's states."""
+        raise NotImplementedError
+
+    # ------------------------------------------------------------------ shared
+    def describe(self) -> str:
+        return f"{self.name}: {self.title}"
+
+
+def as_actions(action: Any, k: int, batch: int) -> np.ndarray:
+    """Orders as int64 [B, k] (a [B] vector is accepted for one order slot)."""
+    a = np.asarray(action, dtype=np.int64)
+    if a.ndim <= 1 and k == 1:
+        return a.reshape(batch, 1)
+    return a.reshape(batch, k)
+
+
+def labels_text(labels: Sequence[str]) -> str:
+    return ", ".join(f"{i}: {lab}" for i, lab in enumerate(labels))
