@@ -18,9 +18,14 @@ class Policy(Protocol):
 
 
 class PolicyBase:
-    """Small base class for named policies with parameters."""
+    """Small base class for named policies with parameters.
+
+    `models` names the models a policy is defined for (empty: any); suites pair a policy only
+    with instances of those models, and building it for another model is refused.
+    """
 
     name: str = "policy"
+    models: tuple[str, ...] = ()
 
     def act(self, obs: np.ndarray) -> np.ndarray:  # pragma: no cover - abstract
         raise NotImplementedError

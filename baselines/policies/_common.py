@@ -112,9 +112,7 @@ class Optimum:
 
     method: str
     cost: float
-    holding: float | None = None
-    shortage: float | None = None
-    ordering: float | None = None
+    parts: dict[str, float] = field(default_factory=dict)  # cost per period by named part
     evaluations: int = 0
     note: str = ""
     extra: dict[str, Any] = field(default_factory=dict)
@@ -122,9 +120,7 @@ class Optimum:
     def to_dict(self) -> dict[str, Any]:
         d: dict[str, Any] = {"method": self.method, "criterion": "average", "cost": self.cost,
                              "evaluations": self.evaluations}
-        for k in ("holding", "shortage", "ordering"):
-            if getattr(self, k) is not None:
-                d[k] = getattr(self, k)
+        d.update(self.parts)
         if self.note:
             d["note"] = self.note
         d.update(self.extra)

@@ -71,8 +71,7 @@ class ExactScorer:
         if res is None:
             reason = self.failures.get(tuple(point), "no candidate could be evaluated")
             raise BudgetError(f"policy search: no candidate with a finite evaluated cost ({reason})")
-        return Optimum(method="exact_search", cost=float(res.cost), holding=float(res.holding),
-                       shortage=float(res.shortage), ordering=float(res.ordering),
+        return Optimum(method="exact_search", cost=float(res.cost), parts=dict(res.parts),
                        evaluations=self.evaluations, note=note, extra=extra)
 
 

@@ -54,8 +54,8 @@ def backorder_cost(spec: InstanceSpec, S: int) -> Optimum:
     tail = 1.0 - np.cumsum(p)  # tail[k] = P(D > k)
     p_order = float(np.mean([tail[k - 1] if k - 1 < len(tail) else 0.0 for k in range(1, q + 1)]))
     ordering = spec.unit_order_cost * mean + spec.fixed_order_cost * p_order
-    return Optimum(method="analytic", cost=hold + short + ordering, holding=hold, shortage=short,
-                   ordering=ordering)
+    return Optimum(method="analytic", cost=hold + short + ordering,
+                   parts={"holding": hold, "shortage": short, "ordering": ordering})
 
 
 def best_backorder_level(spec: InstanceSpec) -> int:
@@ -79,6 +79,7 @@ class BaseStockPolicy(ClassicalPolicy):
     """Order up to S on the inventory position (net stock + pipeline)."""
 
     name = "base_stock"
+    models = ("lost_sales", "backorder", "perishable")
 
     def __init__(self, spec: InstanceSpec, S: int) -> None:
         self.spec = spec

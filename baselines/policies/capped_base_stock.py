@@ -26,6 +26,7 @@ class CappedBaseStockPolicy(ClassicalPolicy):
     """Order up to S on the inventory position, but never more than r units a period."""
 
     name = "capped_base_stock"
+    models = ("lost_sales", "backorder", "perishable")
 
     def __init__(self, spec: InstanceSpec, S: int, r: int) -> None:
         self.spec = spec

@@ -27,9 +27,11 @@ def evaluate_constant_order(spec: InstanceSpec, r: int, max_states: int | None =
     """
     from invbench.baselines.policy_eval import evaluate_exact  # heavy; only when evaluating
 
-    if spec.model != "lost_sales":
-        raise ValueError("evaluate_constant_order: defined for the lost-sales model")
-    if r > 0 and r >= normalized_mean(spec):
+    if spec.model == "backorder":
+        raise ValueError("evaluate_constant_order: no finite long-run cost under backorders")
+    # Perishable stock is bounded by r x shelf life (everything older perishes), so any r is
+    # stable there; under lost sales only r below mean demand is.
+    if spec.model == "lost_sales" and r > 0 and r >= normalized_mean(spec):
         raise BudgetError(f"constant order {r}: not below mean demand, stock grows without bound")
     kw = {} if max_states is None else {"max_states": max_states}
     return evaluate_exact(spec, ConstantOrderPolicy(spec, r), **kw)
@@ -39,6 +41,7 @@ class ConstantOrderPolicy(ClassicalPolicy):
     """Order the same r units (a case-pack multiple) every period."""
 
     name = "constant_order"
+    models = ("lost_sales", "backorder", "perishable")
 
     def __init__(self, spec: InstanceSpec, r: int) -> None:
         self.spec = spec
@@ -70,6 +73,8 @@ class ConstantOrderPolicy(ClassicalPolicy):
         q = spec.case_pack
         mean = normalized_mean(spec)
         k_max = max(int(math.ceil(mean / q)) - 1, 0)  # largest k with k*q < mean
+        if spec.model == "perishable":
+            k_max = int(math.ceil(mean / q))  # waste makes r above the mean pointless
         k_max = min(k_max, spec.order_cap_units // q)
         start = min(max(int((mean - math.sqrt(spec.demand.var)) // q), 0), k_max)
         scorer = ExactScorer(spec, lambda x: x[0] * q, progress=progress, desc="constant_order",

@@ -54,6 +54,7 @@ class MyopicPolicy(ClassicalPolicy):
     """One-period-ahead cost minimiser (see the module docstring for the exact criterion)."""
 
     name = "myopic"
+    models = ("lost_sales", "backorder")
 
     def __init__(self, spec: InstanceSpec) -> None:
         self.spec = spec

@@ -43,6 +43,7 @@ class PILPolicy(ClassicalPolicy):
     """Order so the expected stock at the order's arrival reaches the target."""
 
     name = "pil"
+    models = ("lost_sales", "backorder")
 
     def __init__(self, spec: InstanceSpec, target: float) -> None:
         self.spec = spec

@@ -50,11 +50,25 @@ def policy_class(name: str) -> type[PolicyBase]:
     return POLICIES[name]
 
 
+def supports(name: str, model: str) -> bool:
+    """Whether the policy `name` is defined for `model`."""
+    cls = policy_class(name)
+    return not cls.models or model in cls.models
+
+
+def policies_for(model: str) -> list[str]:
+    """Names of the classical policies defined for `model`, in registry order."""
+    return [n for n in POLICIES if supports(n, model)]
+
+
 def make_policy(spec: InstanceSpec, name: str, params: Mapping[str, Any] | None = None, *,
                 progress: bool = False, max_states: int | None = None) -> PolicyBase:
     """The policy `name` with `params`; with params None or empty, its optimised instance
     (`.optimum` then tells how it was found and what it costs)."""
     cls = policy_class(name)
+    if not supports(name, spec.model):
+        raise SpecError(f"policy: {name} is not defined for the {spec.model} model "
+                        f"(policies for it: {', '.join(policies_for(spec.model))})")
     if params is not None and not isinstance(params, Mapping):
         raise SpecError(f"param: must be a table of parameter values for {name}, got {params!r}")
     if not params:

@@ -37,8 +37,8 @@ def ss_backorder_cost(spec: InstanceSpec, s: int, S: int) -> Optimum:
     hold = float(w @ lead_time_cost(spec.with_(shortage_cost=0.0), ys))
     short = float(w @ lead_time_cost(spec.with_(holding_cost=0.0), ys))
     ordering = spec.fixed_order_cost / float(m.sum()) + spec.unit_order_cost * normalized_mean(spec)
-    return Optimum(method="analytic", cost=hold + short + ordering, holding=hold, shortage=short,
-                   ordering=ordering, note="Zheng & Federgruen (1991)")
+    return Optimum(method="analytic", cost=hold + short + ordering,
+                   parts={"holding": hold, "shortage": short, "ordering": ordering}, note="Zheng & Federgruen (1991)")
 
 
 def _formula_applies(spec: InstanceSpec, zf: ZFResult) -> bool:
@@ -51,6 +51,7 @@ class SSPolicy(ClassicalPolicy):
     """Reorder level s, order-up-to level S (s < S)."""
 
     name = "s_S"
+    models = ("lost_sales", "backorder")
 
     def __init__(self, spec: InstanceSpec, s: int, S: int) -> None:
         self.spec = spec
