@@ -117,6 +117,12 @@ class Optimum:
     note: str = ""
     extra: dict[str, Any] = field(default_factory=dict)
 
+    def __getattr__(self, key: str) -> float:
+        parts = self.__dict__.get("parts") or {}
+        if key in parts:  # cost parts read as attributes (optimum.holding), whatever the model
+            return parts[key]
+        raise AttributeError(key)
+
     def to_dict(self) -> dict[str, Any]:
         d: dict[str, Any] = {"method": self.method, "criterion": "average", "cost": self.cost,
                              "evaluations": self.evaluations}
