@@ -103,6 +103,10 @@ class InventoryModel:
     shortfall: str = "lost"
     #: a negative first state coordinate is possible (net inventory)
     signed_level: bool = False
+    #: flows that take units out of the inventory position (conservation of units)
+    departing: tuple[str, ...] = ("sales",)
+    #: a tiny instance (spec dict without "model") for the conformance test and examples
+    example: dict[str, Any] = {}
 
     # ------------------------------------------------------------------ model: layout
     def check(self, spec: "InstanceSpec") -> None:
@@ -139,6 +143,11 @@ class InventoryModel:
              demand: np.ndarray) -> tuple[np.ndarray, Outcome]:  # model
         """One period for a batch: (next state [B, n], outcome)."""
         raise NotImplementedError
+
+    def units_out(self, outcome: Outcome, demand: np.ndarray) -> np.ndarray:
+        """Units that left the inventory position this period: the position moves by the
+        orders placed minus this (checked on random inputs by the conformance test)."""
+        return sum(outcome.flows[k] for k in self.departing)  # type: ignore[return-value]
 
     # ------------------------------------------------------------------ model: exact solver
     def exact_space(self, spec: "InstanceSpec") -> "ExactSpace":  # model

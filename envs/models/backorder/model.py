@@ -28,6 +28,12 @@ class BackorderModel(InventoryModel):
         "`shortage_cost`; end-of-period on-hand stock costs `holding_cost` per unit.")
     shortfall = "backordered"
     signed_level = True
+    departing = ()  # the position falls by the whole demand, met now or later
+    example = {"lead_time": 1, "holding_cost": 1.0, "shortage_cost": 9.0, "fixed_order_cost": 5.0,
+               "demand": {"distribution": "poisson", "mean": 2.0}}
+
+    def units_out(self, outcome: Outcome, demand: np.ndarray) -> np.ndarray:
+        return np.asarray(demand, dtype=np.int64)
 
     def state_labels(self, spec: "InstanceSpec") -> list[str]:
         return pipeline_labels("net inventory (on-hand - backorders) after the receipt", max(spec.lead_time, 1))

@@ -29,6 +29,8 @@ class LostSalesModel(InventoryModel):
         "be met is lost at `shortage_cost` per unit. End-of-period stock costs `holding_cost` per "
         "unit; an order costs `unit_order_cost` per unit plus `fixed_order_cost` when positive.")
     shortfall = "lost"
+    example = {"lead_time": 2, "holding_cost": 1.0, "shortage_cost": 9.0,
+               "demand": {"distribution": "poisson", "mean": 2.0}}
 
     def check(self, spec: "InstanceSpec") -> None:
         if spec.shortage_cost <= 0 and spec.holding_cost <= 0:
