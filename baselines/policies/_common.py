@@ -11,6 +11,7 @@ import numpy as np
 
 from invbench.baselines.policy import PolicyBase
 from invbench.envs.errors import SpecError
+from invbench.envs.newsvendor import critical_ratio, fractile  # noqa: F401  (shared by the policies)
 from invbench.envs.spec import InstanceSpec
 
 
@@ -89,16 +90,6 @@ def normalized_mean(spec: InstanceSpec) -> float:
     """Mean one-period demand of the pmf the solvers use (truncated, rescaled to sum to one)."""
     p = spec.demand.pmf().normalized()
     return float(np.dot(np.arange(len(p)), p))
-
-
-def fractile(cdf: np.ndarray, ratio: float) -> int:
-    """Smallest level y with cdf[y] >= ratio (the newsvendor critical-fractile level)."""
-    return int(min(np.searchsorted(cdf, ratio - 1e-12), len(cdf) - 1))
-
-
-def critical_ratio(spec: InstanceSpec) -> float:
-    h, p = spec.holding_cost, spec.shortage_cost
-    return p / (p + h) if p + h > 0 else 0.5
 
 
 @dataclass

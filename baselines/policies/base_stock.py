@@ -10,17 +10,16 @@ import numpy as np
 
 from invbench.envs.models.backorder.lead_time_cost import lead_time_cost
 from invbench.baselines.policy import legal_orders
+from invbench.envs.newsvendor import order_up_to_level
 from invbench.envs.spec import InstanceSpec
 
-from ._common import (ClassicalPolicy, Optimum, as_states, check_names, critical_ratio, fractile,
-                      int_param,
+from ._common import (ClassicalPolicy, Optimum, as_states, check_names, int_param,
                       inventory_position)
 
 
 def fractile_level(spec: InstanceSpec) -> int:
     """Smallest S with P(D over L + 1 periods <= S) >= p / (p + h): the newsvendor level."""
-    cdf = spec.demand.lead_time_pmf(spec.lead_time + 1).cdf()
-    return fractile(cdf, critical_ratio(spec))
+    return order_up_to_level(spec)
 
 
 def analytic_applies(spec: InstanceSpec) -> bool:

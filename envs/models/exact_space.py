@@ -194,15 +194,6 @@ class ExactSpace:
         return out
 
 
-def fractile_level(spec: "InstanceSpec", holding: float | None = None) -> int:
-    """Critical-fractile order-up-to level on demand over L + 1 periods (backorder base-stock)."""
-    h = spec.holding_cost if holding is None else holding
-    p = spec.shortage_cost
-    ratio = p / (p + h) if p + h > 0 else 0.5
-    cdf = spec.demand.lead_time_pmf(spec.lead_time + 1).cdf()
-    return int(np.searchsorted(cdf, ratio - 1e-12))
-
-
 def eoq_room(spec: "InstanceSpec", holding: float | None = None) -> int:
     """Extra room for batch ordering when a fixed cost makes large orders pay (EOQ scale)."""
     if spec.fixed_order_cost <= 0:

@@ -5,9 +5,11 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from invbench.envs.newsvendor import order_up_to_level
+
 from ..base import InventoryModel, Outcome
 from ..exact_space import (Bounds, ExactSpace, SizeEstimate, BYTES_PER_NNZ, BYTES_PER_PAIR,
-                           count_simplex_states, eoq_room, fractile_level, simplex_states)
+                           count_simplex_states, eoq_room, simplex_states)
 from ..pipeline import advance, ordering_cost, pipeline_labels, stock_inputs
 from ..state_index import StateCodec, StateIndex
 from .lead_time_cost import lead_time_cost
@@ -62,7 +64,7 @@ def _initial_bounds(spec: "InstanceSpec") -> Bounds:
     maximal demand below that is as low as the position can fall. A starting point only:
     `exact.solve` verifies it after solving and widens it."""
     q = spec.case_pack
-    base, room = fractile_level(spec), eoq_room(spec)
+    base, room = order_up_to_level(spec), eoq_room(spec)
     dmax = spec.demand.pmf().support_max
     return Bounds(upper=base + 2 * room + q + 1, lower=min(base - 2 * room - dmax - q - 1, -1))
 

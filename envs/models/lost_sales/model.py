@@ -6,10 +6,11 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from invbench.envs.errors import SpecError
+from invbench.envs.newsvendor import order_up_to_level
 
 from ..base import InventoryModel, Outcome
 from ..exact_space import (PEAK_BYTES_PER_NNZ, Bounds, ExactSpace, SizeEstimate, count_simplex_states,
-                           eoq_room, fractile_level)
+                           eoq_room)
 from ..pipeline import advance, ordering_cost, pipeline_labels, stock_inputs
 
 if TYPE_CHECKING:
@@ -66,7 +67,7 @@ class LostSalesSpace(ExactSpace):
         never needs more protection than backorders. A fixed order cost adds EOQ-scale room, a
         case pack one pack. `exact.solve` verifies the bound after solving and widens it."""
         q = self.spec.case_pack
-        return Bounds(upper=max(fractile_level(self.spec) + eoq_room(self.spec) + q, q))
+        return Bounds(upper=max(order_up_to_level(self.spec) + eoq_room(self.spec) + q, q))
 
     def estimate(self, b: Bounds) -> SizeEstimate:
         # pairs with stock v: (pipeline, order) combinations with sum <= B - v, thinned by the

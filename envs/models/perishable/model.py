@@ -12,9 +12,10 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from invbench.envs.errors import SpecError
+from invbench.envs.newsvendor import order_up_to_level
 
 from ..base import Field, InventoryModel, Outcome
-from ..exact_space import Bounds, ExactSpace, eoq_room, fractile_level
+from ..exact_space import Bounds, ExactSpace, eoq_room
 from ..pipeline import ordering_cost
 
 if TYPE_CHECKING:
@@ -110,4 +111,4 @@ class PerishableSpace(ExactSpace):
         spec = self.spec
         h = spec.holding_cost + spec.outdating_cost / spec.shelf_life
         q = spec.case_pack
-        return Bounds(upper=max(fractile_level(spec, holding=h) + eoq_room(spec, holding=max(h, 1e-9)) + q, q))
+        return Bounds(upper=max(order_up_to_level(spec, holding=h) + eoq_room(spec, holding=max(h, 1e-9)) + q, q))

@@ -1,0 +1,30 @@
+"""The newsvendor critical fractile, written once: the ratio p / (p + h), the smallest level
+whose cdf reaches it, and the order-up-to level on demand over L + 1 periods (backorder
+base-stock; Zipkin 2000, from memory). Solvers use it for first bounds, policies for starting
+points and formulas, agents for scaling."""
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+if TYPE_CHECKING:
+    from .spec import InstanceSpec
+
+
+def critical_ratio(spec: "InstanceSpec", holding: float | None = None) -> float:
+    """p / (p + h); 0.5 when both costs are 0. `holding` replaces the spec's holding cost."""
+    h = spec.holding_cost if holding is None else holding
+    p = spec.shortage_cost
+    return p / (p + h) if p + h > 0 else 0.5
+
+
+def fractile(cdf: np.ndarray, ratio: float) -> int:
+    """Smallest level y with cdf[y] >= ratio, at most the last level of the table."""
+    return int(min(np.searchsorted(cdf, ratio - 1e-12), len(cdf) - 1))
+
+
+def order_up_to_level(spec: "InstanceSpec", periods: int | None = None, holding: float | None = None) -> int:
+    """Critical-fractile level of demand over `periods` (default L + 1) periods."""
+    n = spec.lead_time + 1 if periods is None else periods
+    return fractile(spec.demand.lead_time_pmf(n).cdf(), critical_ratio(spec, holding))
