@@ -20,8 +20,9 @@ DEFAULT_EPISODE_LENGTH = 500
 OBS_LIMIT = 1e9
 
 
-def resolve_spec(model: str, spec: Any = None, **overrides: Any) -> InstanceSpec:
+def resolve_spec(env_model: str, spec: Any = None, **overrides: Any) -> InstanceSpec:
     """A spec from `spec` (InstanceSpec, dict or TOML path) with keyword overrides applied on top."""
+    model = env_model
     if spec is None:
         base: dict[str, Any] = {"model": model, "demand": {"distribution": "poisson", "mean": 5.0}}
     else:
