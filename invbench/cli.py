@@ -13,7 +13,7 @@ from typing import Sequence
 
 from invbench.envs.errors import BudgetError, SpecError
 
-PLUGIN_MODULES = ("invbench.cli_core", "invbench.agents.cli", "invbench.experiments.cli")
+PLUGIN_MODULES = ("invbench.cli_core", "invbench.agents.cli", "invbench.experiments.cli", "invbench.fitting.cli")
 
 
 class _Parser(argparse.ArgumentParser):
