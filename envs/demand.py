@@ -69,7 +69,7 @@ class DiscretePmf:
         for _ in range(n):
             out = _convolve(out, self.probs)
         kept = _truncate(out, TAIL_MASS)
-        dropped = 1.0 - (1.0 - self.truncation_mass) ** n + (out.sum() - kept.sum())
+        dropped = -math.expm1(n * math.log1p(-self.truncation_mass)) + float(out[len(kept):].sum())
         return DiscretePmf(kept, float(max(dropped, 0.0)))
 
 
