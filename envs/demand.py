@@ -189,11 +189,6 @@ def support_limit(values: int) -> Iterator[None]:
         _MAX_SUPPORT.reset(token)
 
 
-def max_support() -> int:
-    """The demand support limit in force."""
-    return _MAX_SUPPORT.get()
-
-
 def _num(params: Mapping[str, Any], key: str, lo: float | None = None, hi: float | None = None,
          lo_open: bool = False, integer: bool = False) -> float:
     field_name = f"demand.{key}"
