@@ -12,9 +12,14 @@ import csv
 import io
 import math
 import os
+import random
 import time
+from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any, Callable, Iterator
+
+import numpy as np
+import torch
 
 from tqdm.auto import tqdm
 
@@ -71,13 +76,15 @@ class TrainingMonitor:
         self.bar.refresh()
         policy = None
         if force or step >= self._next_eval:
-            policy = policy_fn()
-            self.record(step, policy)
+            with training_rng_untouched():
+                policy = policy_fn()
+                self.record(step, policy)
             while self._next_eval <= step:
                 self._next_eval += self.eval_every
         if self._next_ckpt is not None and (step >= self._next_ckpt) and self.out is not None:
-            policy = policy if policy is not None else policy_fn()
-            policy.save(self.out / "checkpoints" / f"step_{step:010d}")
+            with training_rng_untouched():
+                policy = policy if policy is not None else policy_fn()
+                policy.save(self.out / "checkpoints" / f"step_{step:010d}")
             while self._next_ckpt <= step:
                 self._next_ckpt += self.checkpoint_every
 
@@ -136,6 +143,23 @@ class TrainingMonitor:
         self.bar.close()
         if self._tb is not None:
             self._tb.close()
+
+
+@contextmanager
+def training_rng_untouched() -> Iterator[None]:
+    """Run evaluation or a checkpoint without moving the training's random generators.
+
+    Evaluation has its own generators (the CRN simulator's seed); this fence guarantees that
+    nothing it calls draws from torch's, numpy's or Python's global generator that the agent
+    trains with, so a seed gives the same policy whatever the curve and checkpoint settings.
+    """
+    torch_state, np_state, py_state = torch.get_rng_state(), np.random.get_state(), random.getstate()
+    try:
+        yield
+    finally:
+        torch.set_rng_state(torch_state)
+        np.random.set_state(np_state)
+        random.setstate(py_state)
 
 
 def _tensorboard(out: Path) -> Any:

@@ -32,9 +32,24 @@ class PolicyFileError(SpecError):
     """A policy directory is missing, tampered with, or does not fit the instance."""
 
 
+def _umask() -> int:
+    """The process umask (read without changing it where /proc allows; else set and restored)."""
+    try:
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("Umask:"):
+                return int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def _atomic_write(path: Path, data: bytes) -> None:
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
+        # mkstemp creates 0600; the result is an ordinary file, so give it the usual umask mode
+        os.fchmod(fd, 0o666 & ~_umask())
         with os.fdopen(fd, "wb") as f:
             f.write(data)
         os.replace(tmp, path)
@@ -160,15 +175,38 @@ def _read_weights(d: Path, meta: Mapping[str, Any], shapes: Mapping[str, tuple[i
     return tensors
 
 
+def _flat(d: Mapping[str, Any], prefix: str = "") -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for k, v in d.items():
+        if isinstance(v, Mapping):
+            out.update(_flat(v, f"{prefix}{k}."))
+        else:
+            out[f"{prefix}{k}"] = list(v) if isinstance(v, (list, tuple, np.ndarray)) else v
+    return out
+
+
+def instance_differences(a: InstanceSpec, b: InstanceSpec) -> list[str]:
+    """Fields (dotted, e.g. `demand.mean`) in which two instances differ; the name is only a label."""
+    fa, fb = _flat(a.to_dict()), _flat(b.to_dict())
+    fa.pop("name", None)
+    fb.pop("name", None)
+    return sorted(k for k in set(fa) | set(fb) if fa.get(k) != fb.get(k))
+
+
 def _check_instance(stored: InstanceSpec, spec: InstanceSpec | None, allow_other_instance: bool) -> InstanceSpec:
+    """Matched by content, not by name: an identical instance under another name is accepted."""
     if spec is None:
         return stored
     if (spec.model, spec.state_dim, spec.case_pack) != (stored.model, stored.state_dim, stored.case_pack):
         _refuse(f"policy: trained for {stored.model} with state length {stored.state_dim} and case pack "
                 f"{stored.case_pack}, instance has {spec.model}, {spec.state_dim}, {spec.case_pack}")
-    if spec.to_dict() != stored.to_dict() and not allow_other_instance:
-        _refuse(f"policy: trained for instance {stored.label}, not {spec.label} "
-                f"(pass allow_other_instance=True to apply it anyway)")
+    diff = instance_differences(stored, spec)
+    if diff and not allow_other_instance:
+        fs, fi = _flat(stored.to_dict()), _flat(spec.to_dict())
+        shown = "; ".join(f"{k} = {fs.get(k, '(unset)')!r} there, {fi.get(k, '(unset)')!r} here" for k in diff[:3])
+        more = f" and {len(diff) - 3} more" if len(diff) > 3 else ""
+        _refuse(f"policy: trained for another instance: {shown}{more} (apply it anyway with "
+                "--allow-other-instance, or allow_other_instance=True in Python)")
     return spec
 
 
@@ -178,6 +216,10 @@ def load_policy(directory: str | Path, spec: Any = None, *, allow_other_instance
     from .network import PolicyNet, check_architecture, tensor_shapes
     from .scaling import Scaling
 
+    if not isinstance(directory, (str, Path)):
+        _refuse(f"policy: the folder must be a path, got {type(directory).__name__}")
+    if not isinstance(allow_other_instance, bool):
+        _refuse(f"allow_other_instance: must be True or False, got {allow_other_instance!r}")
     d = Path(directory)
     if not d.is_dir():
         _refuse(f"policy: {str(d)!r} is not a directory")
@@ -199,7 +241,7 @@ def load_policy(directory: str | Path, spec: Any = None, *, allow_other_instance
     target = _check_instance(stored, None if spec is None else load_spec(spec), allow_other_instance)
     if scaling.max_order_units > target.order_cap_units:
         _refuse(f"policy: orders up to {scaling.max_order_units} units exceed the instance's cap {target.order_cap_units}")
-    net = PolicyNet(arch)
+    net = PolicyNet(arch, init=False)
     net.load_named_tensors(tensors)
     return LearnedPolicy(target, scaling, net, agent=str(meta.get("agent", "")),
                          meta={k: meta.get(k) for k in ("training", "versions", "measured")})

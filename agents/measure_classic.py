@@ -17,6 +17,7 @@ import time
 from pathlib import Path
 from typing import Any
 
+from invbench.envs.errors import SpecError
 from invbench.envs.spec import InstanceSpec, spec_from_dict
 
 DEFAULT_OUT = Path(__file__).resolve().parent.parent / "experiments" / "results" / "classic-lost-sales"
@@ -34,7 +35,7 @@ def instance(key: str) -> InstanceSpec:
         L, p = key.upper().lstrip("L").split("P")
         L, p = int(L), int(p)
     except ValueError:
-        raise SystemExit(f"instances: expected keys like L2p19, got {key!r}") from None
+        raise SpecError(f"instances: expected keys like L2p19, got {key!r}") from None
     return spec_from_dict({"name": f"classic-L{L}-p{p}", "model": "lost_sales", "lead_time": L, "holding_cost": 1.0,
                            "shortage_cost": float(p), "demand": {"distribution": "poisson", "mean": 5}})
 
@@ -107,11 +108,15 @@ def summarize(out: Path) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
+    from invbench.cli_args import check_output_dir, integer, number
+
+    from .training import AGENTS
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--instances", default="all", help="comma list like L1p4,L4p39, or all (16)")
     ap.add_argument("--agents", default="ppo,rollout")
-    ap.add_argument("--seed", type=int, default=0)
-    ap.add_argument("--cpu-minutes", type=float, default=10.0, help="training budget per instance and agent")
+    ap.add_argument("--seed", type=integer(0, 2**32 - 1), default=0)
+    ap.add_argument("--cpu-minutes", type=number(0, lo_open=True), default=10.0,
+                    help="training budget per instance and agent")
     ap.add_argument("--out", default=str(DEFAULT_OUT))
     ap.add_argument("--set", dest="overrides", action="append", default=[], metavar="AGENT.KEY=VALUE",
                     help="extra setting for one agent, e.g. --set rollout.rollouts=16")
@@ -122,7 +127,16 @@ def main(argv: list[str] | None = None) -> int:
         name, _, kv = o.partition(".")
         k, _, v = kv.partition("=")
         extra.setdefault(name, {})[k] = v
-    out = Path(a.out)
+    try:  # every instance key, agent name and the output folder checked before hours of work
+        for key in keys:
+            instance(key)
+        bad = [ag for ag in a.agents.split(",") if ag not in AGENTS]
+        if bad:
+            raise SpecError(f"agents: must be among {', '.join(AGENTS)}, got {bad[0]!r}")
+        out = check_output_dir(a.out, "--out")
+    except SpecError as e:
+        sys.stderr.write(f"measure_classic: error: {e}\n")
+        return 2
     out.mkdir(parents=True, exist_ok=True)
     for key in keys:
         base = baselines(instance(key))

@@ -55,11 +55,14 @@ def tensor_shapes(arch: Mapping[str, Any]) -> dict[str, tuple[int, ...]]:
 class PolicyNet(nn.Module):
     """Linear layers with one activation between them; returns one score per action."""
 
-    def __init__(self, arch: Mapping[str, Any]) -> None:
+    def __init__(self, arch: Mapping[str, Any], init: bool = True) -> None:
+        """`init=False` leaves the weights uninitialised for a caller that copies them in: no
+        random initialisation, so copying a network never draws from torch's global generator."""
         super().__init__()
         self.arch = check_architecture(arch)
         sizes = [arch["inputs"], *arch["hidden"], arch["outputs"]]
-        self.linears = nn.ModuleList(nn.Linear(sizes[i], sizes[i + 1]) for i in range(len(sizes) - 1))
+        make = nn.Linear if init else (lambda i, o: nn.utils.skip_init(nn.Linear, i, o))
+        self.linears = nn.ModuleList(make(sizes[i], sizes[i + 1]) for i in range(len(sizes) - 1))
         self.act = ACTIVATIONS[arch["activation"]]()
 
     def forward(self, x: torch.Tensor) -> torch.Tensor:
@@ -87,7 +90,7 @@ def from_linears(layers: list[nn.Linear], activation: str, head: str) -> PolicyN
     """Copy a chain of linear layers (e.g. taken out of an SB3 policy) into a `PolicyNet`."""
     arch = architecture(layers[0].in_features, [l.out_features for l in layers[:-1]], layers[-1].out_features,
                         activation, head)
-    net = PolicyNet(arch)
+    net = PolicyNet(arch, init=False)
     with torch.no_grad():
         for dst, src in zip(net.linears, layers):
             dst.weight.copy_(src.weight)

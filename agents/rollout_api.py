@@ -227,6 +227,6 @@ def run_rollout_agent(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, 
 
 
 def _copy(net: PolicyNet, arch: dict[str, Any]) -> PolicyNet:
-    out = PolicyNet(arch)
+    out = PolicyNet(arch, init=False)
     out.load_state_dict(net.state_dict())
     return out.eval()

@@ -94,7 +94,7 @@ def _range_text(lo: Any, hi: Any, lo_open: bool) -> str:
         return f"{'>' if lo_open else '>='} {lo:g}"
     if hi is not None:
         return f"<= {hi:g}"
-    return "a number"
+    return ""
 
 
 def coerce(name: str, value: Any, meta: Mapping[str, Any]) -> Any:
@@ -123,25 +123,31 @@ def coerce(name: str, value: Any, meta: Mapping[str, Any]) -> Any:
 
 
 def _number(key: str, value: Any, integer: bool, meta: Mapping[str, Any]) -> Any:
+    lo, hi, lo_open = meta["lo"], meta["hi"], meta["lo_open"]
+    rng = _range_text(lo, hi, lo_open)
     auto_txt = " or auto" if meta["auto"] else ""
+    want = f"{'an integer' if integer else 'a number'}{' ' + rng if rng else ''}{auto_txt}"  # every refusal states the range
     if isinstance(value, str):
         try:
             value = float(value.strip())
         except ValueError:
-            raise SpecError(f"{key}: must be {'an integer' if integer else 'a number'}{auto_txt}, got {value!r}") from None
+            raise SpecError(f"{key}: must be {want}, got {value!r}") from None
     if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise SpecError(f"{key}: must be {'an integer' if integer else 'a number'}{auto_txt}, got {value!r}")
-    if not math.isfinite(float(value)):
-        raise SpecError(f"{key}: must be finite, got {value}")
+        raise SpecError(f"{key}: must be {want}, got {value!r}")
+    try:
+        finite = math.isfinite(float(value))
+    except OverflowError:
+        finite = False
+    if not finite:
+        raise SpecError(f"{key}: must be a finite {want.split(' ', 1)[1]}, got {value}")
     if integer:
         if float(value) != int(value):
-            raise SpecError(f"{key}: must be an integer, got {value}")
+            raise SpecError(f"{key}: must be {want}, got {value}")
         value = int(value)
     else:
         value = float(value)
-    lo, hi, lo_open = meta["lo"], meta["hi"], meta["lo_open"]
     if (lo is not None and (value < lo or (lo_open and value <= lo))) or (hi is not None and value > hi):
-        raise SpecError(f"{key}: must be {_range_text(lo, hi, lo_open)}{auto_txt}, got {value:g}")
+        raise SpecError(f"{key}: must be {rng}{auto_txt}, got {value:g}")
     return value
 
 
@@ -201,7 +207,9 @@ def agent_table(path: str | Path) -> dict[str, Any]:
     if not p.is_file():
         return {}
     try:
-        data = tomllib.loads(p.read_text())
+        data = tomllib.loads(p.read_text(encoding="utf-8"))
+    except UnicodeDecodeError as e:
+        raise SpecError(f"spec file: {p} is not UTF-8 text (byte at offset {e.start}); save it as UTF-8") from None
     except tomllib.TOMLDecodeError as e:
         raise SpecError(f"spec file: {p} is not valid TOML ({e})") from None
     table = data.get("agent", {})

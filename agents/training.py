@@ -7,6 +7,7 @@ and `train.json` with this run's TrainResult.
 from __future__ import annotations
 
 import dataclasses
+import math
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -69,12 +70,31 @@ def resolve_settings(agent: str, settings: Any) -> CommonSettings:
     return sb3_settings(agent, settings)
 
 
-def _check_run(steps: Any, seed: Any) -> tuple[int, int]:
-    if isinstance(steps, bool) or not isinstance(steps, int) or steps < 1:
-        raise SpecError(f"steps: must be an integer >= 1, got {steps!r}")
+def _check_run(steps: Any, seed: Any, max_cpu_seconds: Any, select_best: Any) -> tuple[int, int]:
+    if isinstance(steps, bool) or not isinstance(steps, int) or not 1 <= steps <= 10**12:
+        raise SpecError(f"steps: must be an integer in [1, 1e12], got {steps!r}")
     if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**32:
         raise SpecError(f"seed: must be an integer in [0, 4294967295], got {seed!r}")
+    if (isinstance(max_cpu_seconds, bool) or not isinstance(max_cpu_seconds, (int, float))
+            or not math.isfinite(max_cpu_seconds) or max_cpu_seconds < 0):
+        raise SpecError(f"max_cpu_seconds: must be a finite number >= 0 (0: no limit), got {max_cpu_seconds!r}")
+    if not isinstance(select_best, bool):
+        raise SpecError(f"select_best: must be True or False, got {select_best!r}")
     return steps, seed
+
+
+def _check_curve_budget(spec: InstanceSpec, s: CommonSettings) -> None:
+    """Each learning-curve point is a simulation: refuse one over the simulator's limits up front."""
+    from invbench.envs.errors import BudgetError
+    from invbench.experiments.simulate import DEFAULT_MAX_MEMORY_MB, DEFAULT_MAX_PERIOD_STEPS, simulation_size
+    reps = max(int(s.eval_replications), 2)
+    per_rep = s.eval_periods if spec.discount < 1 else s.eval_warmup + s.eval_periods
+    steps, mib = simulation_size(spec.state_dim, reps, per_rep)
+    if steps > DEFAULT_MAX_PERIOD_STEPS or mib > DEFAULT_MAX_MEMORY_MB:
+        raise BudgetError(f"agent.eval_replications / agent.eval_periods: each learning-curve point would simulate "
+                          f"{reps:,} x {per_rep:,} = {steps:.3g} period-steps in about {mib:,.0f} MiB, over the limits "
+                          f"of {DEFAULT_MAX_PERIOD_STEPS:.0e} period-steps and {DEFAULT_MAX_MEMORY_MB:,} MiB "
+                          "(lower these settings)")
 
 
 def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, out: str | Path | None = None,
@@ -89,12 +109,16 @@ def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, ou
     """
     import torch
 
+    from invbench.cli_args import check_output_dir
     spec = load_spec(spec)
-    steps, seed = _check_run(steps, seed)
+    steps, seed = _check_run(steps, seed, max_cpu_seconds, select_best)
     s = resolve_settings(agent, settings)
+    _check_curve_budget(spec, s)
+    if out is not None and not isinstance(out, (str, Path)):
+        raise SpecError(f"out: must be a directory path or None, got {type(out).__name__}")
+    out_dir = check_output_dir(out, "out") if out is not None else None  # before any work
     torch.set_num_threads(int(s.threads))
     torch.manual_seed(seed)
-    out_dir = Path(out) if out is not None else None
     opt = _optimum(spec, optimum, s.progress)
     t0, c0 = time.perf_counter(), time.process_time()
     from .callbacks import TrainingMonitor
@@ -138,7 +162,10 @@ def _optimum(spec: InstanceSpec, optimum: Any, progress: bool) -> float | None:
         from .lead_api import solve_optimum
         res = solve_optimum(spec, progress=progress)
         return None if res is None else float(res.cost)
-    return float(getattr(optimum, "cost", optimum))
+    v = getattr(optimum, "cost", optimum)
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+        raise SpecError(f"optimum: must be 'auto', None, a finite number or a solve result, got {optimum!r}")
+    return float(v)
 
 
 def _run_sb3(agent: str, spec: InstanceSpec, s: Any, scaling: Any, steps: int, seed: int, monitor: Any) -> tuple[Any, int]:

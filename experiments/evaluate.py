@@ -7,12 +7,16 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from invbench.baselines.policy import as_policy
+import math
+
+import numpy as np
+
 from invbench.baselines.policy_eval import DEFAULT_MAX_STATES, evaluate_exact
 from invbench.envs.errors import BudgetError, SpecError
 from invbench.envs.spec import load_spec
 
-from .simulate import simulate
+from .simulate import (DEFAULT_MAX_MEMORY_MB, DEFAULT_MAX_PERIOD_STEPS, check_limit, check_policy, check_run,
+                       check_simulation_budget, simulate)
 
 METHODS = ("auto", "exact", "simulate")
 
@@ -49,27 +53,41 @@ class Evaluation:
 
 
 def _optimum_value(optimum: Any) -> float | None:
+    """None, a finite number, or anything with a numeric `cost` (a SolveResult)."""
     if optimum is None:
         return None
-    return float(getattr(optimum, "cost", optimum))
+    v = getattr(optimum, "cost", optimum)
+    if isinstance(v, bool) or not isinstance(v, (int, float, np.integer, np.floating)) or not math.isfinite(float(v)):
+        shown = repr(optimum) if len(repr(optimum)) <= 60 else repr(optimum)[:57] + "..."
+        raise SpecError(f"optimum: must be None, a finite number or a solve result, got {shown}")
+    return float(v)
 
 
 def evaluate(spec: Any, policy: Any, *, method: str = "auto", optimum: Any = None, replications: int = 100,
              periods: int = 2000, warmup: int = 200, seed: int = 0, max_states: int = DEFAULT_MAX_STATES,
-             progress: bool = False) -> Evaluation:
+             progress: bool = False, max_period_steps: float = DEFAULT_MAX_PERIOD_STEPS,
+             max_memory_mb: float = DEFAULT_MAX_MEMORY_MB) -> Evaluation:
     """Cost of `policy` (a Policy, or any callable obs batch -> orders) on `spec`.
 
     method: "exact", "simulate", or "auto" (exact, falling back to simulation when the policy's
     reachable state space is over `max_states` or it is unstable). `optimum`: a number or a
-    SolveResult, for the gap.
+    SolveResult, for the gap. Every argument is checked before any work starts, the simulation
+    budget (`max_period_steps`, `max_memory_mb`, see `simulate`) included.
     """
     spec = load_spec(spec)
-    if method not in METHODS:
+    if not isinstance(method, str) or method not in METHODS:
         raise SpecError(f"method: must be one of {', '.join(METHODS)}, got {method!r}")
-    pol = as_policy(policy)
+    opt = _optimum_value(optimum)
+    R, T, W, _ = check_run(replications, periods, warmup, seed)
+    if isinstance(max_states, bool) or not isinstance(max_states, (int, np.integer)) or max_states < 1:
+        raise SpecError(f"max_states: must be an integer >= 1, got {max_states!r}")
+    if method != "exact":
+        check_simulation_budget(spec.state_dim, R, T if spec.discount < 1 else W + T,
+                                check_limit("max_period_steps", max_period_steps),
+                                check_limit("max_memory_mb", max_memory_mb))
+    pol = check_policy(policy)
     name = pol.describe() if hasattr(pol, "describe") else type(pol).__name__
     params = pol.params() if hasattr(pol, "params") else {}
-    opt = _optimum_value(optimum)
     note = ""
     if method in ("auto", "exact"):
         try:
@@ -81,6 +99,6 @@ def evaluate(spec: Any, policy: Any, *, method: str = "auto", optimum: Any = Non
                 raise
             note = f"simulated because {e}"
     sim = simulate(spec, pol, replications=replications, periods=periods, warmup=warmup, seed=seed,
-                   progress=progress)
+                   progress=progress, max_period_steps=max_period_steps, max_memory_mb=max_memory_mb)
     return Evaluation(name, sim.cost, sim.ci_halfwidth, sim.holding, sim.shortage, sim.ordering, "simulated",
                       sim.criterion, sim.seconds, opt, None, note, params)

@@ -2,7 +2,8 @@
 
 Demand in period t of replication r comes from the uniform U[t, r] of a generator seeded with
 `seed`, drawn period by period; so every policy evaluated with the same seed on an instance
-faces the same demand streams, and a run is reproducible bit for bit.
+faces the same demand streams, and a run is reproducible bit for bit. The work (period-steps)
+and memory are estimated from the arguments and refused over their limits before anything runs.
 """
 from __future__ import annotations
 
@@ -15,8 +16,17 @@ from scipy import stats
 
 from invbench.baselines.policy import as_policy, legal_orders
 from invbench.envs.dynamics import initial_state, step_fn
-from invbench.envs.errors import SpecError
+from invbench.envs.errors import BudgetError, SpecError
 from invbench.envs.spec import load_spec
+
+#: Default limit on replications x (warm-up + periods). One billion period-steps take a few
+#: minutes at the batch simulator's recorded 7-12 million period-steps per second
+#: (experiments/perf/RESULTS.md); raise it with `--max-period-steps` / `max_period_steps=`.
+DEFAULT_MAX_PERIOD_STEPS = 1_000_000_000
+#: Default limit on the simulation's working memory (the per-replication arrays), in MiB.
+DEFAULT_MAX_MEMORY_MB = 4096
+#: Recorded throughput used only to put a time on a refusal (experiments/perf/RESULTS.md).
+_STEPS_PER_SECOND = 7e6
 
 
 @dataclass
@@ -42,10 +52,58 @@ class SimulationResult:
                 "criterion": self.criterion, "method": self.method}
 
 
-def _check_int(name: str, v: Any, lo: int) -> int:
-    if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < lo:
-        raise SpecError(f"{name}: must be an integer >= {lo}, got {v!r}")
+def _check_int(name: str, v: Any, lo: int, hi: int | None = None) -> int:
+    rng = f">= {lo}" if hi is None else f"in [{lo}, {hi}]"
+    if isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < lo or (hi is not None and v > hi):
+        shown = repr(v) if len(repr(v)) <= 60 else repr(v)[:57] + "..."
+        raise SpecError(f"{name}: must be an integer {rng}, got {shown}")
     return int(v)
+
+
+def check_limit(name: str, v: Any, integer: bool = False) -> float:
+    """A positive, finite budget (max_period_steps, max_memory_mb); SpecError naming it otherwise."""
+    kind = "an integer" if integer else "a number"
+    if isinstance(v, bool) or not isinstance(v, (int, float, np.integer, np.floating)):
+        raise SpecError(f"{name}: must be {kind} > 0, got {v!r}")
+    if not (np.isfinite(float(v)) and v > 0) or (integer and float(v) != int(v)):
+        raise SpecError(f"{name}: must be a finite {kind[kind.index(' ') + 1:]} > 0, got {v!r}")
+    return float(v)
+
+
+def simulation_size(state_dim: int, replications: int, steps_per_replication: int) -> tuple[int, float]:
+    """(period-steps, working memory in MiB) of a batch simulation, estimated before running it.
+
+    Per replication and period the simulator holds the state (int64 and a float32 copy), orders,
+    uniforms, demands, four cost parts and six accumulator entries: about 8 (2 n + 14) bytes,
+    taken as 8 (3 n + 24) to leave room for a policy's own temporaries.
+    """
+    steps = replications * steps_per_replication
+    mib = replications * 8 * (3 * state_dim + 24) / 2**20
+    return steps, mib
+
+
+def check_simulation_budget(state_dim: int, replications: int, steps_per_replication: int,
+                            max_period_steps: float, max_memory_mb: float) -> None:
+    """BudgetError with the estimate and the option to raise when a simulation is over its limits."""
+    steps, mib = simulation_size(state_dim, replications, steps_per_replication)
+    if steps > max_period_steps:
+        hours = steps / _STEPS_PER_SECOND / 3600
+        raise BudgetError(
+            f"simulation: {replications:,} replications x {steps_per_replication:,} periods = {steps:.3g} "
+            f"period-steps (about {hours:,.1f} h at {_STEPS_PER_SECOND:.0e} per second), over the limit of "
+            f"{max_period_steps:.3g} (lower --replications/--periods, or raise --max-period-steps / max_period_steps=)")
+    if mib > max_memory_mb:
+        raise BudgetError(
+            f"simulation: {replications:,} replications need about {mib:,.0f} MiB of working memory, over the "
+            f"limit of {max_memory_mb:,.0f} MiB (lower --replications, or raise --max-memory-mb / max_memory_mb=)")
+
+
+def check_policy(policy: Any) -> Any:
+    """The policy as a Policy; SpecError (not TypeError) for anything that cannot act."""
+    if not (callable(policy) or callable(getattr(policy, "act", None))):
+        raise SpecError(f"policy: must have act(obs) or be a callable from an observation batch to orders, "
+                        f"got {type(policy).__name__}")
+    return as_policy(policy)
 
 
 def demand_stream(spec: Any, rng: np.random.Generator, replications: int) -> np.ndarray:
@@ -54,22 +112,26 @@ def demand_stream(spec: Any, rng: np.random.Generator, replications: int) -> np.
 
 
 def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 2000, warmup: int = 200,
-             seed: int = 0, start: np.ndarray | None = None, progress: bool = False) -> SimulationResult:
+             seed: int = 0, start: np.ndarray | None = None, progress: bool = False,
+             max_period_steps: float = DEFAULT_MAX_PERIOD_STEPS,
+             max_memory_mb: float = DEFAULT_MAX_MEMORY_MB) -> SimulationResult:
     """Mean cost per period over `periods` after `warmup`, with a 95 % CI across replications.
 
     Discounted instances (discount < 1): the discounted total from period 0 over `periods`
-    periods (no warm-up), averaged over replications.
+    periods (no warm-up), averaged over replications. Refused (BudgetError, with the estimate)
+    when replications x (warmup + periods) is over `max_period_steps` or the working memory is
+    over `max_memory_mb`.
     """
     spec = load_spec(spec)
-    R = _check_int("replications", replications, 2)
-    T = _check_int("periods", periods, 1)
-    W = _check_int("warmup", warmup, 0)
-    seed = _check_int("seed", seed, 0)
-    pol = as_policy(policy)
+    R, T, W, seed = check_run(replications, periods, warmup, seed)
+    discounted = spec.discount < 1
+    check_simulation_budget(spec.state_dim, R, T if discounted else W + T,
+                            check_limit("max_period_steps", max_period_steps),
+                            check_limit("max_memory_mb", max_memory_mb))
+    pol = check_policy(policy)
     step = step_fn(spec)
     rng = np.random.default_rng(seed)
-    state = initial_state(spec, R) if start is None else np.repeat(np.asarray(start, np.int64).reshape(1, -1), R, 0)
-    discounted = spec.discount < 1
+    state = initial_state(spec, R) if start is None else _start(spec, start, R)
     acc = np.zeros((R, 3))
     weight = 1.0
     t0 = time.perf_counter()
@@ -92,3 +154,19 @@ def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 
     m = per_rep.mean(axis=0)
     return SimulationResult(float(total.mean()), half, float(m[0]), float(m[1]), float(m[2]), R, T, W, seed,
                             time.perf_counter() - t0, "discounted" if discounted else "average", total)
+
+
+def check_run(replications: Any, periods: Any, warmup: Any, seed: Any) -> tuple[int, int, int, int]:
+    """The run lengths and seed as integers in their ranges (SpecError naming the argument)."""
+    return (_check_int("replications", replications, 2), _check_int("periods", periods, 1),
+            _check_int("warmup", warmup, 0), _check_int("seed", seed, 0, 2**63 - 1))
+
+
+def _start(spec: Any, start: Any, R: int) -> np.ndarray:
+    try:
+        s = np.asarray(start, dtype=np.int64).reshape(-1)
+    except (TypeError, ValueError, OverflowError):
+        raise SpecError(f"start: must be {spec.state_dim} integers, got {start!r}") from None
+    if s.shape != (spec.state_dim,):
+        raise SpecError(f"start: must be {spec.state_dim} integers, got {s.size}")
+    return np.repeat(s.reshape(1, -1), R, 0)

@@ -1,15 +1,34 @@
 """The public Python API in a few functions; `import invbench` re-exports them."""
 from __future__ import annotations
 
+import functools
+import math
 from typing import Any
 
 import gymnasium as gym
 
-from invbench.baselines.exact import SolveResult, solve
+from invbench.baselines import exact
+from invbench.baselines.exact import DEFAULT_MAX_MEMORY_MB, DEFAULT_MAX_STATES, SolveResult
+from invbench.envs.errors import SpecError
 from invbench.envs.spec import InstanceSpec, load_spec
 from invbench.experiments.evaluate import Evaluation, evaluate
 
 ENV_ID = {"lost_sales": "invbench/LostSales-v0", "backorder": "invbench/Backorder-v0"}
+
+
+@functools.wraps(exact.solve)
+def solve(spec: Any, *, max_states: int = DEFAULT_MAX_STATES, max_memory_mb: float = DEFAULT_MAX_MEMORY_MB,
+          **kwargs: Any) -> SolveResult:
+    # the budgets are checked here, by type and range, so a NaN or a string cannot slip past them
+    if isinstance(max_states, bool) or not isinstance(max_states, int) or max_states < 1:
+        raise SpecError(f"max_states: must be an integer >= 1, got {max_states!r}")
+    if (isinstance(max_memory_mb, bool) or not isinstance(max_memory_mb, (int, float))
+            or not math.isfinite(max_memory_mb) or max_memory_mb <= 0):
+        raise SpecError(f"max_memory_mb: must be a finite number > 0, got {max_memory_mb!r}")
+    rel_tol = kwargs.get("rel_tol", 1e-6)
+    if isinstance(rel_tol, bool) or not isinstance(rel_tol, (int, float)) or not 0 < rel_tol < 1:
+        raise SpecError(f"rel_tol: must be a number in (0, 1), got {rel_tol!r}")
+    return exact.solve(spec, max_states=max_states, max_memory_mb=max_memory_mb, **kwargs)
 
 
 def make_env(spec: Any, **kwargs: Any) -> gym.Env:

@@ -16,10 +16,13 @@ from invbench.envs.errors import BudgetError, SpecError
 PLUGIN_MODULES = ("invbench.cli_core", "invbench.agents.cli", "invbench.experiments.cli", "invbench.fitting.cli")
 
 
+class _UsageError(Exception):
+    """A bad command line; `main` prints it as one line and returns 2."""
+
+
 class _Parser(argparse.ArgumentParser):
     def error(self, message: str) -> None:  # one line, exit 2, as for every other bad input
-        sys.stderr.write(f"{self.prog}: error: {message}\n")
-        sys.exit(2)
+        raise _UsageError(f"{self.prog}: error: {message}")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -39,9 +42,15 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
     try:
-        return int(args.func(args) or 0)
+        args = parser.parse_args(argv)
+    except _UsageError as e:
+        sys.stderr.write(f"{e}\n")
+        return 2
+    from invbench.envs.demand import DEFAULT_MAX_SUPPORT, support_limit
+    try:
+        with support_limit(getattr(args, "max_demand_support", DEFAULT_MAX_SUPPORT)):
+            return int(args.func(args) or 0)
     except (SpecError, BudgetError) as e:
         sys.stderr.write(f"invbench: error: {e}\n")
         return 2

@@ -1,14 +1,23 @@
-"""Core commands: solve, evaluate, policies, demo."""
+"""Core commands: solve, evaluate, policies, demo.
+
+Every option value is range-checked by the parser (`cli_args`), every file before it is used,
+so bad input ends in one line and exit code 2 before any work starts.
+"""
 from __future__ import annotations
 
 import argparse
 import json
+import math
+import os
 import sys
 from pathlib import Path
 from typing import Any
 
 from invbench.baselines.exact import DEFAULT_MAX_MEMORY_MB, DEFAULT_MAX_STATES
 from invbench.envs.errors import SpecError
+from invbench.experiments.simulate import DEFAULT_MAX_PERIOD_STEPS
+
+from .cli_args import add_demand_limit, check_spec_file, integer, number
 
 
 def _parse_params(items: list[str] | None) -> dict[str, Any]:
@@ -24,17 +33,15 @@ def _parse_params(items: list[str] | None) -> dict[str, Any]:
             out[k] = json.loads(v)
         except json.JSONDecodeError:
             out[k] = v
+        if isinstance(out[k], float) and not math.isfinite(out[k]):
+            raise SpecError(f"--param {k}: must be a finite number, got {v!r}")
     return out
 
 
 def _solve(args: argparse.Namespace) -> int:
     from invbench.api import load_spec, solve
     from invbench.baselines.summary import summarize
-    spec = load_spec(args.spec)
-    if not 0 < args.rel_tol < 1:
-        raise SpecError(f"--rel-tol: must be in (0, 1), got {args.rel_tol}")
-    if args.max_states < 1 or args.max_memory_mb <= 0:
-        raise SpecError("--max-states / --max-memory-mb: must be > 0")
+    spec = load_spec(check_spec_file(args.spec))
     res = solve(spec, rel_tol=args.rel_tol, max_states=args.max_states, max_memory_mb=args.max_memory_mb,
                 progress=not args.json and sys.stderr.isatty())
     if args.json:
@@ -55,30 +62,49 @@ def _solve(args: argparse.Namespace) -> int:
     return 0
 
 
-def _load_any_policy(spec: Any, name: str, params: dict[str, Any], progress: bool = False) -> Any:
-    if Path(name).is_dir():
+def _load_any_policy(spec: Any, name: str, params: dict[str, Any], progress: bool = False,
+                     allow_other_instance: bool = False) -> Any:
+    """A classical policy by name, or a trained policy from its folder (told apart by the path)."""
+    from invbench.baselines.policies.registry import make_policy, policy_names
+    path = Path(name)
+    if path.is_dir():
+        if params:
+            raise SpecError(f"--param: a trained policy ({name}) takes no parameters")
         try:
             from invbench.agents import load_policy
         except ImportError:
             raise SpecError(f"--policy: {name} is a directory but the agents part is not installed") from None
-        return load_policy(name, spec=spec)
-    from invbench.baselines.policies.registry import make_policy
+        return load_policy(name, spec=spec, allow_other_instance=allow_other_instance)
+    if path.exists():
+        raise SpecError(f"--policy: {name} is a file; give a policy name ({', '.join(policy_names())}) "
+                        "or a trained-policy folder")
+    if name not in policy_names():
+        if "/" in name or os.sep in name or name.startswith((".", "~")):
+            raise SpecError(f"--policy: folder {name!r} does not exist (expected a trained-policy folder "
+                            "holding policy.json and weights.safetensors)")
+        raise SpecError(f"--policy: must be one of {', '.join(policy_names())} or a trained-policy folder, "
+                        f"got {name!r} (no such name or folder)")
     return make_policy(spec, name, params or None, progress=progress)
 
 
 def _evaluate(args: argparse.Namespace) -> int:
     from invbench.api import evaluate, load_spec
-    spec = load_spec(args.spec)
+    from invbench.experiments.simulate import check_simulation_budget
+    spec = load_spec(check_spec_file(args.spec))
     params = _parse_params(args.param)
     tty = sys.stderr.isatty() and not args.json
-    policy = _load_any_policy(spec, args.policy, params, progress=tty)
     method = "exact" if args.exact else "simulate" if args.simulate else "auto"
+    if method != "exact":  # before the policy is optimised or the optimum solved
+        steps = args.periods if spec.discount < 1 else args.warmup + args.periods
+        check_simulation_budget(spec.state_dim, args.replications, steps, args.max_period_steps, args.max_memory_mb)
+    policy = _load_any_policy(spec, args.policy, params, progress=tty, allow_other_instance=args.allow_other_instance)
     opt = None
     if args.gap:
         from invbench.api import solve
-        opt = solve(spec, progress=tty)
+        opt = solve(spec, progress=tty, max_memory_mb=args.max_memory_mb)
     ev = evaluate(spec, policy, method=method, optimum=opt, replications=args.replications,
-                  periods=args.periods, warmup=args.warmup, seed=args.seed, progress=tty)
+                  periods=args.periods, warmup=args.warmup, seed=args.seed, progress=tty,
+                  max_period_steps=args.max_period_steps, max_memory_mb=args.max_memory_mb)
     if args.json:
         print(json.dumps(ev.to_dict(), indent=2))
         return 0
@@ -110,11 +136,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("solve", help="certified exact optimum of an instance")
     p.add_argument("spec", help="instance TOML file")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
-    p.add_argument("--rel-tol", type=float, default=1e-6, help="certified relative gap (default 1e-6)")
-    p.add_argument("--max-states", type=int, default=DEFAULT_MAX_STATES,
+    p.add_argument("--rel-tol", type=number(0, 1, lo_open=True, hi_open=True), default=1e-6,
+                   help="certified relative gap, in (0, 1) (default 1e-6)")
+    p.add_argument("--max-states", type=integer(1), default=DEFAULT_MAX_STATES,
                    help=f"refuse instances with more states (default {DEFAULT_MAX_STATES:,})")
-    p.add_argument("--max-memory-mb", type=float, default=DEFAULT_MAX_MEMORY_MB,
+    p.add_argument("--max-memory-mb", type=number(0, lo_open=True), default=DEFAULT_MAX_MEMORY_MB,
                    help=f"refuse instances whose estimated peak memory is larger (default {DEFAULT_MAX_MEMORY_MB:,} MiB)")
+    add_demand_limit(p)
     p.set_defaults(func=_solve)
 
     p = sub.add_parser("evaluate", help="cost of a policy on an instance, exact or simulated")
@@ -125,10 +153,17 @@ def register(sub: argparse._SubParsersAction) -> None:
     g.add_argument("--exact", action="store_true", help="exact evaluation only (fails if too large)")
     g.add_argument("--simulate", action="store_true", help="simulation only")
     p.add_argument("--gap", action="store_true", help="also solve exactly and report the gap to the optimum")
-    p.add_argument("--replications", type=int, default=100)
-    p.add_argument("--periods", type=int, default=2000)
-    p.add_argument("--warmup", type=int, default=200)
-    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--replications", type=integer(2), default=100, help="simulated replications (default 100)")
+    p.add_argument("--periods", type=integer(1), default=2000, help="measured periods per replication (default 2000)")
+    p.add_argument("--warmup", type=integer(0), default=200, help="periods discarded first (default 200)")
+    p.add_argument("--seed", type=integer(0, 2**63 - 1), default=0)
+    p.add_argument("--max-period-steps", type=number(0, lo_open=True), default=DEFAULT_MAX_PERIOD_STEPS,
+                   help=f"refuse simulations of more replications x periods (default {DEFAULT_MAX_PERIOD_STEPS:.0e})")
+    p.add_argument("--max-memory-mb", type=number(0, lo_open=True), default=DEFAULT_MAX_MEMORY_MB,
+                   help=f"memory limit of the simulation and of --gap's solve (default {DEFAULT_MAX_MEMORY_MB:,} MiB)")
+    p.add_argument("--allow-other-instance", action="store_true",
+                   help="apply a trained policy to an instance other than the one it was trained for")
+    add_demand_limit(p)
     p.add_argument("--json", action="store_true")
     p.set_defaults(func=_evaluate)
 

@@ -2,7 +2,9 @@
 from __future__ import annotations
 
 import json
+import os
 import pickle
+import stat
 import struct
 
 import numpy as np
@@ -99,9 +101,29 @@ def test_mismatched_instance_is_refused(exported):
     _, d = exported
     with pytest.raises(PolicyFileError, match="state length"):
         load_policy(d, SPEC.with_(lead_time=3))
-    with pytest.raises(PolicyFileError, match="trained for instance"):
+    with pytest.raises(PolicyFileError, match="shortage_cost = 9.0 there, 19.0 here"):
         load_policy(d, SPEC.with_(shortage_cost=19.0))
+    with pytest.raises(PolicyFileError, match=r"demand.mean = 5 there, 6 here.*--allow-other-instance"):
+        load_policy(d, SPEC.with_(name="same-name", demand=spec_from_dict(
+            {"model": "lost_sales", "demand": {"distribution": "poisson", "mean": 6}}).demand))
     assert load_policy(d, SPEC.with_(shortage_cost=19.0), allow_other_instance=True).spec.shortage_cost == 19.0
+
+
+def test_instance_is_matched_by_content_not_name(exported):
+    _, d = exported
+    renamed = SPEC.with_(name="bicycle-chains-weekly")  # identical instance under another label
+    assert load_policy(d, renamed).spec.name == "bicycle-chains-weekly"
+
+
+def test_exported_files_follow_the_umask(tmp_path):
+    old = os.umask(0o022)
+    try:
+        net = PolicyNet(architecture(2, (4,), 16, "tanh", "logits"))
+        d = LearnedPolicy(SPEC, SCALING, net).save(tmp_path / "p")
+    finally:
+        os.umask(old)
+    for name in (META, WEIGHTS):
+        assert stat.S_IMODE((d / name).stat().st_mode) == 0o644, name
 
 
 def test_missing_directory_and_files(tmp_path):

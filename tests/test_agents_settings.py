@@ -55,7 +55,7 @@ def test_parse_set_and_agent_table(tmp_path):
 @pytest.mark.parametrize("args, fragment", [
     (["--set", "learning_rate=-1"], "agent.learning_rate: must be in (0, 1]"),
     (["--agent", "sarsa"], "agent: must be one of ppo, a2c, dqn, rollout"),
-    (["--steps", "0"], "agent.steps: must be an integer >= 1"),
+    (["--steps", "0"], "argument --steps: must be an integer >= 1"),
     (["--set", "gamma"], "--set: must look like key=value"),
 ])
 def test_cli_bad_settings_exit_2(tmp_path, capsys, args, fragment):

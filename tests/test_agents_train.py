@@ -75,6 +75,33 @@ def test_same_seed_same_policy():
         assert torch.equal(v, b.policy.net.named_tensors()[k]), k
 
 
+@pytest.mark.parametrize("agent", ["ppo", "dqn"])
+def test_same_seed_same_policy_whatever_the_curve_and_checkpoints(agent, tmp_path):
+    # Learning-curve evaluations and checkpoints have their own generators: how often they run
+    # must not change what is learned (DQN also draws its exploration from numpy's generator).
+    settings, steps = TINY[agent]
+    base = {**QUIET, **settings, **FAST_CURVE}
+    runs = [train(L1P4, agent, steps=steps, seed=3, optimum=None, select_best=False,
+                  settings={**base, "eval_every": steps, "checkpoint_every": 0}),
+            train(L1P4, agent, steps=steps, seed=3, optimum=None, select_best=False, out=tmp_path / "often",
+                  settings={**base, "eval_every": steps // 8, "checkpoint_every": steps // 4, "curve_exact": False})]
+    assert len(runs[1].curve) > len(runs[0].curve)
+    for k, v in runs[0].policy.net.named_tensors().items():
+        assert torch.equal(v, runs[1].policy.net.named_tensors()[k]), k
+
+
+def test_train_refuses_bad_arguments_before_work(tmp_path):
+    from invbench.envs.errors import SpecError
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    for kw, field in [({"out": blocker}, "out"), ({"out": blocker / "sub"}, "out"), ({"max_cpu_seconds": float("nan")},
+                      "max_cpu_seconds"), ({"optimum": "x"}, "optimum"), ({"steps": 2.5}, "steps"), ({"seed": -1}, "seed")]:
+        with pytest.raises(SpecError, match=f"^{field}"):
+            train(L1P4, "rollout", **{"steps": 1, "settings": QUIET, **kw})
+    with pytest.raises(BudgetError, match="agent.eval_replications"):
+        train(L1P4, "ppo", steps=1, settings={**QUIET, "eval_replications": 10**6, "eval_periods": 10**7})
+
+
 def _best_constant_order_cost(spec) -> float:
     # Constant-order policy as defined by Zipkin (2008, "Old and new methods for lost-sales
     # inventory systems", from memory): order r every period. Evaluated exactly; r >= mean

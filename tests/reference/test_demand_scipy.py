@@ -76,3 +76,39 @@ def test_common_random_numbers_give_the_same_demand():
     a = d.sample(np.random.default_rng(7), 1000)
     b = d.sample(np.random.default_rng(7), 1000)
     assert np.array_equal(a, b)
+
+
+def test_large_mean_pmf_and_dropped_tail_match_scipy():
+    # Reference: scipy.stats.poisson. The dropped tail is the tail itself (P(D > last kept)),
+    # not 1 - sum(kept), whose round-off over ~25,000 terms once exceeded TAIL_MASS.
+    mean = 24_351.0
+    pmf = Demand.from_dict({"distribution": "poisson", "mean": mean}).pmf()
+    k = np.arange(len(pmf.probs))
+    np.testing.assert_allclose(pmf.probs, stats.poisson.pmf(k, mean), rtol=1e-9, atol=1e-15)
+    assert pmf.truncation_mass <= TAIL_MASS
+    assert pmf.truncation_mass == pytest.approx(stats.poisson.sf(len(pmf.probs) - 1, mean), rel=1e-6)
+
+
+def test_fft_convolution_of_large_poissons_is_poisson():
+    # Above a few million multiply-adds the convolution goes through the FFT; reference:
+    # scipy.stats.poisson (a sum of independent Poissons is Poisson with the summed mean).
+    d = Demand.from_dict({"distribution": "poisson", "mean": 3000.0})
+    assert len(d.pmf().probs) ** 2 > 4_000_000  # the FFT path is the one under test
+    pmf = d.lead_time_pmf(2)
+    k = np.arange(len(pmf.probs))
+    # each factor dropped <= TAIL_MASS of its tail, as in the direct-convolution test above
+    np.testing.assert_allclose(pmf.probs, stats.poisson.pmf(k, 6000.0), atol=2 * TAIL_MASS)
+    direct = np.convolve(d.pmf().probs, d.pmf().probs)[: len(pmf.probs)]
+    np.testing.assert_allclose(pmf.probs, direct, atol=1e-15)  # the FFT adds only round-off
+    # dropped: the two factors' tails plus the sum's own truncation, each at most TAIL_MASS
+    assert pmf.truncation_mass <= 3 * TAIL_MASS
+    assert abs(pmf.probs.sum() + pmf.truncation_mass - 1) <= 1e-11  # round-off of ~3,000 scipy pmf terms
+
+
+def test_gamma_with_extreme_but_valid_ratio_matches_scipy():
+    # shape (mean/std)^2 = 1e4 computed without overflow; reference scipy.stats.gamma rounded.
+    pmf = Demand.from_dict({"distribution": "gamma", "mean": 50.0, "std": 0.5}).pmf().probs
+    ref = stats.gamma(1e4, scale=0.005)
+    k = np.arange(len(pmf))
+    expect = ref.cdf(k + 0.5) - np.where(k == 0, 0.0, ref.cdf(k - 0.5))
+    np.testing.assert_allclose(pmf, expect, atol=1e-14)
