@@ -69,7 +69,8 @@ def as_policy(obj: Any) -> Policy:
         return obj
     if callable(obj):
         return CallablePolicy(obj)
-    raise TypeError("policy: must have act(obs) or be a callable from an observation batch to orders")
+    raise SpecError("policy: must have act(obs) or be a callable from an observation batch to orders "
+                    f"in units, got {type(obj).__name__}")
 
 
 def legal_orders(spec: Any, orders: np.ndarray) -> np.ndarray:

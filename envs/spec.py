@@ -247,9 +247,14 @@ def load_spec(source: str | Path | Mapping[str, Any] | InstanceSpec) -> Instance
     if not path.is_file():
         raise SpecError(f"spec file: {str(path)!r} does not exist or is not a file")
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
-    except UnicodeDecodeError:
-        raise SpecError(f"spec file: {path} is not UTF-8 text") from None
+        text = path.read_text(encoding="utf-8")
+    except UnicodeDecodeError as e:
+        raise SpecError(f"spec file: {path} is not UTF-8 text (byte 0x{e.object[e.start]:02x} at offset "
+                        f"{e.start}); save it as UTF-8") from None
+    except OSError as e:
+        raise SpecError(f"spec file: {path} cannot be read ({e.strerror or e})") from None
+    try:
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:
         raise SpecError(f"spec file: {path} is not valid TOML ({e})") from None
     if "instance" not in data:

@@ -14,8 +14,8 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from invbench.baselines.policy import as_policy, legal_orders
-from invbench.envs.dynamics import initial_state, step_fn
+from invbench.baselines.policy import as_policy, checked_orders
+from invbench.envs.inventory_env import check_start
 from invbench.envs.errors import BudgetError, SpecError
 from invbench.envs.spec import load_spec
 
@@ -33,9 +33,7 @@ _STEPS_PER_SECOND = 7e6
 class SimulationResult:
     cost: float
     ci_halfwidth: float
-    holding: float
-    shortage: float
-    ordering: float
+    parts: dict[str, float]  # mean cost per period by named part (holding, shortage, ...)
     replications: int
     periods: int
     warmup: int
@@ -44,12 +42,19 @@ class SimulationResult:
     criterion: str
     per_replication: np.ndarray
     method: str = "simulated"
+    clipped_orders: int = 0  # orders moved to a legal size (only when asked to clip)
+
+    def __getattr__(self, key: str) -> float:
+        parts = self.__dict__.get("parts") or {}
+        if key in parts:  # cost parts read as attributes (result.holding), whatever the model
+            return parts[key]
+        raise AttributeError(key)
 
     def to_dict(self) -> dict[str, Any]:
-        return {"cost": self.cost, "ci_halfwidth": self.ci_halfwidth, "holding": self.holding,
-                "shortage": self.shortage, "ordering": self.ordering, "replications": self.replications,
-                "periods": self.periods, "warmup": self.warmup, "seed": self.seed, "seconds": self.seconds,
-                "criterion": self.criterion, "method": self.method}
+        return {"cost": self.cost, "ci_halfwidth": self.ci_halfwidth, **self.parts,
+                "replications": self.replications, "periods": self.periods, "warmup": self.warmup,
+                "seed": self.seed, "seconds": self.seconds, "criterion": self.criterion, "method": self.method,
+                "clipped_orders": self.clipped_orders}
 
 
 def _check_int(name: str, v: Any, lo: int, hi: int | None = None) -> int:
@@ -98,14 +103,6 @@ def check_simulation_budget(state_dim: int, replications: int, steps_per_replica
             f"limit of {max_memory_mb:,.0f} MiB (lower --replications, or raise --max-memory-mb / max_memory_mb=)")
 
 
-def check_policy(policy: Any) -> Any:
-    """The policy as a Policy; SpecError (not TypeError) for anything that cannot act."""
-    if not (callable(policy) or callable(getattr(policy, "act", None))):
-        raise SpecError(f"policy: must have act(obs) or be a callable from an observation batch to orders, "
-                        f"got {type(policy).__name__}")
-    return as_policy(policy)
-
-
 def demand_stream(spec: Any, rng: np.random.Generator, replications: int) -> np.ndarray:
     """One period of demands for all replications (the common-random-numbers draw)."""
     return spec.demand.from_uniforms(rng.random(replications))
@@ -114,13 +111,14 @@ def demand_stream(spec: Any, rng: np.random.Generator, replications: int) -> np.
 def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 2000, warmup: int = 200,
              seed: int = 0, start: np.ndarray | None = None, progress: bool = False,
              max_period_steps: float = DEFAULT_MAX_PERIOD_STEPS,
-             max_memory_mb: float = DEFAULT_MAX_MEMORY_MB) -> SimulationResult:
+             max_memory_mb: float = DEFAULT_MAX_MEMORY_MB, clip: bool = False) -> SimulationResult:
     """Mean cost per period over `periods` after `warmup`, with a 95 % CI across replications.
 
     Discounted instances (discount < 1): the discounted total from period 0 over `periods`
     periods (no warm-up), averaged over replications. Refused (BudgetError, with the estimate)
     when replications x (warmup + periods) is over `max_period_steps` or the working memory is
-    over `max_memory_mb`.
+    over `max_memory_mb`. An order that is not a legal size is refused unless clip=True (then
+    it is rounded down to one and counted in `clipped_orders`).
     """
     spec = load_spec(spec)
     R, T, W, seed = check_run(replications, periods, warmup, seed)
@@ -128,11 +126,13 @@ def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 
     check_simulation_budget(spec.state_dim, R, T if discounted else W + T,
                             check_limit("max_period_steps", max_period_steps),
                             check_limit("max_memory_mb", max_memory_mb))
-    pol = check_policy(policy)
-    step = step_fn(spec)
+    pol = as_policy(policy)
+    model = spec.model_def
     rng = np.random.default_rng(seed)
-    state = initial_state(spec, R) if start is None else _start(spec, start, R)
-    acc = np.zeros((R, 3))
+    state = np.repeat(check_start(spec, start), R, axis=0)
+    names = model.cost_parts
+    acc = np.zeros((R, len(names)))
+    clipped = 0
     weight = 1.0
     t0 = time.perf_counter()
     steps = range(T if discounted else W + T)
@@ -140,20 +140,22 @@ def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 
         from tqdm import tqdm
         steps = tqdm(steps, desc="simulate", unit="period", leave=False)
     for t in steps:
-        orders = legal_orders(spec, pol.act(state.astype(np.float32)))
+        orders, n = checked_orders(spec, pol.act(state.astype(np.float32)), state, clip=clip)
+        clipped += n
         demand = demand_stream(spec, rng, R)
-        state, parts = step(state, orders, demand)
+        state, parts = model.step(spec, state, orders, demand)
         if discounted:
-            acc += weight * np.column_stack([parts.holding, parts.shortage, parts.ordering])
+            acc += weight * np.column_stack([parts.costs[k] for k in names])
             weight *= spec.discount
         elif t >= W:
-            acc += np.column_stack([parts.holding, parts.shortage, parts.ordering])
+            acc += np.column_stack([parts.costs[k] for k in names])
     per_rep = acc if discounted else acc / T
     total = per_rep.sum(axis=1)
     half = float(stats.t.ppf(0.975, R - 1) * total.std(ddof=1) / np.sqrt(R))
     m = per_rep.mean(axis=0)
-    return SimulationResult(float(total.mean()), half, float(m[0]), float(m[1]), float(m[2]), R, T, W, seed,
-                            time.perf_counter() - t0, "discounted" if discounted else "average", total)
+    return SimulationResult(float(total.mean()), half, {k: float(m[j]) for j, k in enumerate(names)}, R, T, W,
+                            seed, time.perf_counter() - t0, "discounted" if discounted else "average", total,
+                            clipped_orders=clipped)
 
 
 def check_run(replications: Any, periods: Any, warmup: Any, seed: Any) -> tuple[int, int, int, int]:
@@ -162,11 +164,3 @@ def check_run(replications: Any, periods: Any, warmup: Any, seed: Any) -> tuple[
             _check_int("warmup", warmup, 0), _check_int("seed", seed, 0, 2**63 - 1))
 
 
-def _start(spec: Any, start: Any, R: int) -> np.ndarray:
-    try:
-        s = np.asarray(start, dtype=np.int64).reshape(-1)
-    except (TypeError, ValueError, OverflowError):
-        raise SpecError(f"start: must be {spec.state_dim} integers, got {start!r}") from None
-    if s.shape != (spec.state_dim,):
-        raise SpecError(f"start: must be {spec.state_dim} integers, got {s.size}")
-    return np.repeat(s.reshape(1, -1), R, 0)
