@@ -123,5 +123,5 @@ def test_cli_bench_writes_table_report_and_exit_codes(tmp_path, capsys):
     assert main(["bench", str(path), "--out", str(out), "--workers", "0"]) == 2
     assert main(["bench", str(path), "--out", str(out), "--backend", "slurm"]) == 2
     err = capsys.readouterr().err
-    assert "--workers: must be >= 1" in err and "--backend: must be one of local, ray" in err
+    assert "--workers: must be an integer in [1, 1024], got 0" in err and "--backend: must be one of local, ray" in err
     assert "Traceback" not in err
