@@ -188,10 +188,17 @@ def load_suite(source: str | Path) -> Suite:
 
 def suite_from_dict(data: Mapping[str, Any], base_dir: Path | None = None, source: str = "") -> Suite:
     """A validated Suite; any problem is a one-line SpecError naming the field."""
+    try:
+        return _suite_from_dict(data, base_dir, source)
+    except SpecError as e:
+        raise check.one_line(e) from None
+
+
+def _suite_from_dict(data: Mapping[str, Any], base_dir: Path | None, source: str) -> Suite:
     data = check.table(data, "suite file", required=True)
     for key in data:
         if key not in ("suite", "evaluation", "instances", "policies"):
-            raise SpecError(f"{key}: unknown top-level key (allowed: suite, evaluation, instances, policies)")
+            raise SpecError(f"{check.key(key)}: unknown top-level key (allowed: suite, evaluation, instances, policies)")
     head = check.table(data.get("suite"), "suite", required=True)
     check.known(head, SUITE_KEYS, "suite")
     name = check.name(head.get("name"), "suite.name")
@@ -238,7 +245,7 @@ def _expand(d: dict[str, Any], where: str, base_dir: Path) -> list[InstanceSpec]
             base = load_spec(path).to_dict()
         except SpecError as e:
             raise SpecError(f"{where}: {e}") from None
-        except (OSError, ValueError) as e:  # unreadable, or not UTF-8
+        except (OSError, ValueError, TypeError, KeyError, AttributeError) as e:  # unreadable, not UTF-8, ...
             raise SpecError(f"{where}.file: {path} cannot be read as a spec file ({check.first_line(e)})") from None
         base.update(d)
     else:
@@ -246,7 +253,7 @@ def _expand(d: dict[str, Any], where: str, base_dir: Path) -> list[InstanceSpec]
     grid = 1
     for k, vals in vary.items():
         if not isinstance(vals, list) or not vals:
-            raise SpecError(f"{where}.vary.{k}: must be a non-empty list of values, got {check.short(vals)}")
+            raise SpecError(f"{where}.vary.{check.key(k)}: must be a non-empty list of values, got {check.short(vals)}")
         grid *= len(vals)
         if grid > MAX_GRID:
             raise SpecError(f"{where}.vary: expands to more than {MAX_GRID} instances; split the grid")
@@ -269,6 +276,9 @@ def _expand(d: dict[str, Any], where: str, base_dir: Path) -> list[InstanceSpec]
             specs.append(spec_from_dict(inst))
         except SpecError as e:
             raise SpecError(f"{where}: {e}") from None
+        except (TypeError, ValueError, KeyError, AttributeError, OverflowError) as e:
+            # the spec loader should have named the field; still one line, never a traceback
+            raise SpecError(f"{where}: not a valid instance ({type(e).__name__}: {check.first_line(e)})") from None
     return specs
 
 
@@ -283,7 +293,7 @@ def _set_field(inst: dict[str, Any], key: str, val: Any, where: str) -> None:
     for p in parts[:-1]:
         nxt = node.get(p)
         if not isinstance(nxt, dict):
-            raise SpecError(f"{where}.vary.{key}: {p!r} is not a table of the instance")
+            raise SpecError(f"{where}.vary.{check.key(key)}: {p!r} is not a table of the instance")
         node = nxt
     node[parts[-1]] = val
 

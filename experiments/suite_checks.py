@@ -40,7 +40,18 @@ def known(d: Mapping[str, Any], allowed: Iterable[str], where: str) -> None:
     allowed = tuple(allowed)
     for k in d:
         if k not in allowed:
-            raise SpecError(f"{where}.{k}: unknown key (allowed: {', '.join(allowed)})")
+            raise SpecError(f"{where}.{key(k)}: unknown key (allowed: {', '.join(allowed)})")
+
+
+def key(k: Any) -> str:
+    """A key as it appears in a field path: plain when it is a plain word, else quoted."""
+    return k if isinstance(k, str) and re.fullmatch(r"[\w.-]+", k) else repr(k)
+
+
+def one_line(e: SpecError) -> SpecError:
+    """The same error with any line break (from a key or value quoted in it) escaped."""
+    msg = str(e)
+    return e if "\n" not in msg and "\r" not in msg else SpecError(msg.replace("\r", "\\r").replace("\n", "\\n"))
 
 
 def integer(v: Any, where: str, lo: int, hi: int | None = None) -> int:
@@ -83,7 +94,7 @@ def evaluation(v: Any, where: str) -> dict[str, Any]:
     out: dict[str, Any] = {}
     for k, val in d.items():
         if k not in EVAL_KEYS:
-            raise SpecError(f"{where}.{k}: unknown key (allowed: {', '.join(EVAL_KEYS)})")
+            raise SpecError(f"{where}.{key(k)}: unknown key (allowed: {', '.join(EVAL_KEYS)})")
         if k == "method":
             if not isinstance(val, str) or val not in EVAL_METHODS:
                 raise SpecError(f"{where}.method: must be one of {', '.join(EVAL_METHODS)}, got {short(val)}")
@@ -108,6 +119,9 @@ def classical(policy: str, params: Mapping[str, Any] | None, specs: Iterable[Any
         raise SpecError(f"{where}.name: must be one of optimum, {', '.join(names)}, got {short(policy)}")
     if not params:
         return  # optimised per instance when the cell runs
+    for k in params:
+        if key(k) != k:  # not a plain word: no parameter is called that
+            raise SpecError(f"{where}.params.{key(k)}: unknown parameter for {policy}")
     for spec in specs:
         try:
             make_policy(spec, policy, params)
@@ -129,6 +143,9 @@ def agent(agent_name: Any, settings: Mapping[str, Any], where: str) -> None:
         from invbench.agents.training import resolve_settings
     except ImportError:
         return  # no agents part here: its cells fail with a clear line (or use --skip-agents)
+    for k in settings:
+        if key(k) != k:  # not a plain word: no setting is called that
+            raise SpecError(f"{where}.settings.{key(k)}: unknown setting for agent {agent_name!r}")
     try:
         resolve_settings(agent_name, {"progress": False, "threads": 1, **settings})
     except SpecError as e:
