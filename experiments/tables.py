@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 import os
 import tempfile
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -92,10 +93,13 @@ def _load(p: Path, what: str) -> pd.DataFrame:
     if b"\0" in head:
         raise SpecError(f"{what}: {p} is a binary file, not a results CSV")
     try:
-        return pd.read_csv(p, keep_default_na=True, encoding="utf-8")
+        with warnings.catch_warnings():
+            # a row longer than the header would otherwise silently become the index or be cut
+            warnings.simplefilter("error", pd.errors.ParserWarning)
+            return pd.read_csv(p, keep_default_na=True, encoding="utf-8", index_col=False)
     except UnicodeDecodeError as e:
         raise SpecError(f"{what}: {p} is not UTF-8 text (byte offset {e.start})") from None
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as e:
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, pd.errors.ParserWarning, ValueError) as e:
         raise SpecError(f"{what}: {p} is not a readable CSV file ({_first_line(e)})") from None
 
 
