@@ -35,7 +35,11 @@ PR_SET_PDEATHSIG = 1  # from <linux/prctl.h>
 
 
 def _die_with_parent() -> bool:
-    """Ask Linux to SIGKILL this process when its parent dies (prctl PR_SET_PDEATHSIG)."""
+    """Ask Linux to SIGKILL this process when its parent dies (prctl PR_SET_PDEATHSIG).
+
+    Linux fires this when the *thread* that started the process ends; the pool starts its
+    workers from `submit`, i.e. from the driver's main thread, which lives as long as the run.
+    """
     if not sys.platform.startswith("linux"):
         return False
     try:
