@@ -5,7 +5,7 @@ PY := $(VENV)/bin/python
 STAMP := $(VENV)/.stamp-base
 TEST_STAMP := $(VENV)/.stamp-test
 
-.PHONY: demo test setup bench perf clean
+.PHONY: demo test setup bench perf clean chromium
 
 setup: $(STAMP)
 
@@ -34,7 +34,16 @@ bench: $(STAMP)
 	$(PY) -m invbench bench classic-lost-sales --skip-agents --out runs/bench-classic-lost-sales --no-report
 	$(PY) -m invbench bench-compare runs/bench-classic-lost-sales experiments/reference/classic-lost-sales.csv
 
-test: $(TEST_STAMP)
+# The report test renders the HTML report in headless Chromium. When it is missing, install
+# Debian's package if this user can (root, apt-get there); otherwise stop with one line.
+chromium_path = $(shell command -v chromium 2>/dev/null || command -v chromium-browser 2>/dev/null)
+can_install = $(and $(filter 0,$(shell id -u 2>/dev/null)),$(shell command -v apt-get 2>/dev/null))
+NO_CHROMIUM = make test needs headless Chromium for the report test: install it with your package manager (Debian: sudo apt-get install -y chromium) and run make test again
+
+chromium:
+	$(if $(chromium_path),@:,$(if $(can_install),@echo "make test: installing chromium (apt-get) for the report test"; apt-get update -qq >/dev/null 2>&1 && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium >/dev/null 2>&1 || { echo "make test: apt-get could not install chromium; $(NO_CHROMIUM)" >&2; exit 1; },$(error $(NO_CHROMIUM))))
+
+test: chromium $(TEST_STAMP)
 	$(PY) -m pytest -n 2 -q
 
 perf: $(STAMP)

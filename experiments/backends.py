@@ -10,6 +10,9 @@ import concurrent.futures as cf
 import multiprocessing as mp
 import os
 import signal
+import sys
+import threading
+import time
 from typing import Any, Iterable, Iterator
 
 from invbench.envs.errors import SpecError
@@ -26,9 +29,46 @@ def _failed(payload: dict[str, Any], message: str) -> dict[str, Any]:
             "instance": payload["instance"].get("name", ""), "status": "failed", "error": message}
 
 
-def _init_worker() -> None:
-    # Ctrl-C is the driver's to handle (it stops the workers); no traceback from every worker.
+#: Seconds between two checks of the watchdog thread that looks for the driver's death.
+WATCHDOG_SECONDS = 1.0
+PR_SET_PDEATHSIG = 1  # from <linux/prctl.h>
+
+
+def _die_with_parent() -> bool:
+    """Ask Linux to SIGKILL this process when its parent dies (prctl PR_SET_PDEATHSIG).
+
+    Linux fires this when the *thread* that started the process ends; the pool starts its
+    workers from `submit`, i.e. from the driver's main thread, which lives as long as the run.
+    """
+    if not sys.platform.startswith("linux"):
+        return False
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL(None, use_errno=True)
+        return libc.prctl(PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0) == 0
+    except (OSError, AttributeError):
+        return False
+
+
+def _watch_parent(driver_pid: int) -> None:
+    # The fallback where prctl is missing (or the parent thread, not the process, ended):
+    # once the driver is gone this process is re-parented, and nobody will collect its result.
+    while True:
+        time.sleep(WATCHDOG_SECONDS)
+        if os.getppid() != driver_pid:
+            os._exit(70)
+
+
+def _init_worker(driver_pid: int) -> None:
+    # The driver owns the run: Ctrl-C and SIGTERM are its to handle (it stops the workers);
+    # no traceback from every worker, and no half-finished cell reported as a crash.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_IGN)
+    _die_with_parent()
+    if os.getppid() != driver_pid:  # the driver died before the line above took effect
+        os._exit(70)
+    threading.Thread(target=_watch_parent, args=(driver_pid,), name="invbench-watchdog", daemon=True).start()
     # One BLAS/torch thread per worker: N workers on N cores, no oversubscription.
     for var in ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS"):
         os.environ.setdefault(var, "1")
@@ -47,7 +87,8 @@ def run_inline(payloads: Iterable[dict[str, Any]]) -> Iterator[dict[str, Any]]:
 def run_pool(payloads: list[dict[str, Any]], workers: int) -> Iterator[dict[str, Any]]:
     """A pool of `workers` fresh processes ("spawn": no state inherited from the driver)."""
     ctx = mp.get_context("spawn")
-    ex = cf.ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_init_worker)
+    ex = cf.ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_init_worker,
+                                initargs=(os.getpid(),))
     clean = False
     try:
         futures = {ex.submit(run_cell, p): p for p in payloads}
@@ -61,9 +102,9 @@ def run_pool(payloads: list[dict[str, Any]], workers: int) -> Iterator[dict[str,
                 yield _failed(futures[fut], f"{type(e).__name__}: {e}")
         clean = True
     finally:
-        if not clean:  # interrupted: drop queued cells and stop the running ones
-            for proc in list(getattr(ex, "_processes", {}).values()):
-                proc.terminate()
+        if not clean:  # interrupted: drop queued cells and stop the running ones (they ignore SIGTERM)
+            for proc in list((getattr(ex, "_processes", None) or {}).values()):
+                proc.kill()
         ex.shutdown(wait=clean, cancel_futures=True)
 
 

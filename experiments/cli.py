@@ -6,11 +6,42 @@ the main CLI turns into one line and exit code 2.
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 from pathlib import Path
 from typing import Any
 
 from invbench.envs.errors import SpecError
+
+#: Most processes `--workers` may ask for; more would only queue on the same cores.
+MAX_WORKERS = 1024
+#: What a results folder holds (checked before a run so nothing is in the way of a write).
+RESULT_DIRS = ("cells", "failed", "damaged", "agents")
+RESULT_FILES = ("suite.toml", "results.csv", "results.parquet", "run.json")
+REPORT_FILES = ("report.md", "report.html", "gap.png", "gap_vs_lead_time.png", "learning_curves.png",
+                "policy_map.png", "results.csv", "results.parquet")
+
+
+def int_option(text: Any, name: str, lo: int, hi: int) -> int:
+    """An integer option in [lo, hi]; "nan", "inf", "2.5" are refused with the range."""
+    try:
+        v = int(str(text).strip())
+    except ValueError:
+        raise SpecError(f"{name}: must be an integer in [{lo}, {hi}], got {text!r}") from None
+    if not lo <= v <= hi:
+        raise SpecError(f"{name}: must be an integer in [{lo}, {hi}], got {v}")
+    return v
+
+
+def float_option(text: Any, name: str, lo: float, hi: float) -> float:
+    """A finite number option in (lo, hi]; NaN and infinities are refused with the range."""
+    try:
+        v = float(str(text).strip())
+    except ValueError:
+        v = math.nan
+    if not (math.isfinite(v) and lo < v <= hi):
+        raise SpecError(f"{name}: must be a finite number in ({lo:g}, {hi:g}], got {text!r}")
+    return v
 
 
 def register(subparsers: Any) -> None:
@@ -21,7 +52,7 @@ def register(subparsers: Any) -> None:
                     "skips finished cells.")
     b.add_argument("suite", nargs="?", help="suite TOML file, or the name of a packaged suite (see --list)")
     b.add_argument("--out", help="results folder (default: runs/SUITE-NAME)")
-    b.add_argument("--workers", type=int, default=None,
+    b.add_argument("--workers", default=None,
                    help="processes running cells at once (default: CPU count; 1 = in this process); with ray and no "
                         "--address, the CPUs of the private Ray instance")
     b.add_argument("--backend", default="local", help="local (process pool, default) or ray")
@@ -44,7 +75,7 @@ def register(subparsers: Any) -> None:
                     "difference of two estimates, sqrt(ci_new^2 + ci_ref^2). Exit 1 when any differs.")
     c.add_argument("dir", help="results folder (or results CSV/Parquet) to check")
     c.add_argument("reference", help="reference results CSV/Parquet (or folder)")
-    c.add_argument("--rtol-exact", type=float, default=2e-6,
+    c.add_argument("--rtol-exact", default="2e-6",
                    help="relative tolerance for exact cells (default 2e-6: twice the solver's certified gap)")
     c.add_argument("--update", action="store_true",
                    help="write DIR's results (timing columns left out) as the new reference instead of comparing")
@@ -52,6 +83,7 @@ def register(subparsers: Any) -> None:
 
 
 def _bench(args: argparse.Namespace) -> int:
+    from .interrupts import Terminated, stop_on_sigterm
     from .suite import load_suite, packaged_suites
 
     if args.list:
@@ -63,20 +95,34 @@ def _bench(args: argparse.Namespace) -> int:
         raise SpecError("suite: required (a TOML file or a packaged suite name; see --list)")
     if args.backend not in ("local", "ray"):
         raise SpecError(f"--backend: must be one of local, ray, got {args.backend!r}")
-    if args.workers is not None and args.workers < 1:
-        raise SpecError(f"--workers: must be >= 1, got {args.workers}")
+    if args.workers is not None:
+        args.workers = int_option(args.workers, "--workers", 1, MAX_WORKERS)
+    if args.address is not None and args.backend != "ray":
+        raise SpecError("--address: only used with --backend ray")
+    if args.address is not None and (not args.address.strip() or any(c.isspace() for c in args.address)):
+        raise SpecError(f"--address: must be HOST:PORT of a running Ray cluster, got {args.address!r}")
+    from .paths import check_output_dir
+
+    # Everything is checked before the first cell starts: the suite, completely, then --out.
+    suite = load_suite(args.suite)
+    out = check_output_dir(Path(args.out) if args.out else Path("runs") / suite.name, "--out",
+                           RESULT_DIRS, RESULT_FILES + (() if args.no_report else REPORT_FILES))
     from .runner import run_bench
 
-    suite = load_suite(args.suite)
-    out = Path(args.out) if args.out else Path("runs") / suite.name
-    res = run_bench(suite, out, backend=args.backend, workers=args.workers, address=args.address,
-                    skip_kinds=("agent",) if args.skip_agents else (), progress=not args.no_progress,
-                    command=["invbench", *sys.argv[1:]])
+    try:
+        with stop_on_sigterm():
+            res = run_bench(suite, out, backend=args.backend, workers=args.workers, address=args.address,
+                            skip_kinds=("agent",) if args.skip_agents else (), progress=not args.no_progress,
+                            command=["invbench", *sys.argv[1:]])
+    except Terminated:
+        sys.stderr.write(f"invbench: terminated (SIGTERM); finished cells are kept and {out / 'results.csv'} "
+                         f"is up to date; rerun the same command to resume\n")
+        return 143
     from .console_table import format_tables
     from .store import read_table
 
     table = res.out / "results.csv"
-    if table.exists():
+    if table.exists() and res.cells:
         for line in format_tables(read_table(res.out)):
             print(line)
         print()
@@ -96,25 +142,35 @@ def _bench(args: argparse.Namespace) -> int:
 
 
 def _report(args: argparse.Namespace) -> int:
+    from .paths import check_output_dir
     from .report import write_report
 
-    rep = write_report(Path(args.dir))
+    root = Path(args.dir)
+    if not (root / "suite.toml").is_file():
+        raise SpecError(f"dir: {root} has no suite.toml (give a results folder written by `invbench bench`)")
+    check_output_dir(root, "dir", RESULT_DIRS, REPORT_FILES)
+    rep = write_report(root)
     for p in rep.files():
         print(p)
+    for original, moved, reason in rep.unread:
+        sys.stderr.write(f"invbench: warning: could not read {original} ({reason}); kept as {moved}, "
+                         f"not in the report; rerun `invbench bench` to compute it again\n")
     return 0
 
 
 def _compare(args: argparse.Namespace) -> int:
+    from .paths import check_output_file
     from .store import TIMING_COLUMNS, atomic_write, compare_results, read_table
 
+    rtol = float_option(args.rtol_exact, "--rtol-exact", 0.0, 1.0)
     if args.update:
-        df = read_table(args.dir).drop(columns=TIMING_COLUMNS, errors="ignore")
-        atomic_write(Path(args.reference), df.to_csv(index=False))
+        target = check_output_file(args.reference, "reference", (".csv",))
+        df = read_table(args.dir, "dir").drop(columns=TIMING_COLUMNS, errors="ignore")
+        atomic_write(target, df.to_csv(index=False))
         print(f"reference written: {args.reference} ({len(df)} cells)")
         return 0
-    if not args.rtol_exact > 0:
-        raise SpecError(f"--rtol-exact: must be > 0, got {args.rtol_exact}")
-    res = compare_results(read_table(args.dir), read_table(args.reference), rtol_exact=args.rtol_exact)
+    new, ref = read_table(args.dir, "dir"), read_table(args.reference, "reference")
+    res = compare_results(new, ref, rtol_exact=rtol)
     for line in res.lines():
         print(line)
     return 0 if res.ok else 1

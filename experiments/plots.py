@@ -6,6 +6,7 @@ units and a legend.
 """
 from __future__ import annotations
 
+import io
 import math
 from pathlib import Path
 from typing import Any
@@ -25,8 +26,14 @@ SWEEP_GROUP_FIELDS = ("model", "holding_cost", "shortage_cost", "unit_order_cost
 
 
 def _save(fig: Any, path: Path) -> Path:
-    fig.savefig(path, dpi=DPI, bbox_inches="tight")
-    plt.close(fig)
+    from .store import atomic_write  # late: the store does not need matplotlib
+
+    buf = io.BytesIO()
+    try:
+        fig.savefig(buf, format="png", dpi=DPI, bbox_inches="tight")
+    finally:
+        plt.close(fig)
+    atomic_write(path, buf.getvalue())  # a killed report never leaves half a PNG
     return path
 
 

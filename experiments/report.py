@@ -24,12 +24,15 @@ class ReportResult:
     md: Path
     html: Path
     pngs: list[Path] = field(default_factory=list)
+    #: (original file, file in damaged/, reason) of cell files that could not be read
+    unread: list[tuple[str, str, str]] = field(default_factory=list)
 
     def files(self) -> list[Path]:
         return [self.md, self.html, *self.pngs]
 
     def to_dict(self) -> dict[str, Any]:
-        return {"md": str(self.md), "html": str(self.html), "pngs": [str(p) for p in self.pngs]}
+        return {"md": str(self.md), "html": str(self.html), "pngs": [str(p) for p in self.pngs],
+                "unread": [list(u) for u in self.unread]}
 
 
 def _pct(v: Any, digits: int = 2) -> str:
@@ -71,7 +74,8 @@ def write_report(root: str | Path) -> ReportResult:
     if suite.invented:
         blocks.append(("p", "All instances in this suite are invented (a made-up bicycle-parts "
                             "wholesaler); they hold no real company's data."))
-    blocks.append(("p", _run_line(df, meta)))
+    unread = _unread(store, df)
+    blocks.append(("p", _run_line(df, meta, len(suite.cells()), len(unread))))
     blocks.append(("p", "Gap = (cost - optimum) / optimum, with the optimum the certified exact "
                         "average cost per period. Exact cells carry no sampling error; simulated cells "
                         "give a 95% confidence interval (CI) from independent replications with common "
@@ -106,20 +110,37 @@ def write_report(root: str | Path) -> ReportResult:
         blocks.append(("h2", "Failed cells"))
         blocks.append(("table", (["instance", "policy", "seed", "error"],
                                  [[r.instance, r.policy, str(r.seed), str(r.error)] for r in bad.itertuples()])))
+    if unread:
+        blocks.append(("h2", "Cell files that could not be read"))
+        blocks.append(("p", "These files were moved aside into damaged/; rerun `invbench bench` with "
+                            "the same suite and folder to compute their cells again."))
+        blocks.append(("table", (["file", "moved to", "problem"], [list(u) for u in unread])))
     md_path, html_path = root / "report.md", root / "report.html"
     atomic_write(md_path, _to_md(blocks))
     atomic_write(html_path, _to_html(blocks, root, suite.name))
-    return ReportResult(md_path, html_path, pngs)
+    return ReportResult(md_path, html_path, pngs, unread)
 
 
-def _run_line(df: pd.DataFrame, meta: dict[str, Any]) -> str:
+def _unread(store: ResultStore, df: pd.DataFrame) -> list[tuple[str, str, str]]:
+    """(original file, file in damaged/, reason) of damaged cell files not recomputed since."""
+    have = set(df["cell_id"])
+    out = []
+    for moved, original, reason in store.damaged():
+        if Path(original).stem not in have and (store.damaged_dir / moved).exists():
+            out.append((original, f"damaged/{moved}", reason))
+    return out
+
+
+def _run_line(df: pd.DataFrame, meta: dict[str, Any], total: int, unread: int) -> str:
     inv = (meta.get("invocations") or [{}])[-1]
     git = meta.get("git") or {}
     commit = (git.get("commit") or "unknown")[:10] + (" (uncommitted changes)" if git.get("dirty") else "")
     versions = meta.get("versions") or {}
     mach = meta.get("machine") or {}
     n_ok = int((df["status"] == "ok").sum())
-    return (f"{len(df)} cells ({n_ok} finished, {len(df) - n_ok} failed); last run {inv.get('finished', '?')} "
+    head = f"{len(df)} of the suite's {total} cells ({n_ok} finished, {len(df) - n_ok} failed"
+    head += f", {unread} cell file(s) could not be read, see below)" if unread else ")"
+    return (f"{head}; last run {inv.get('finished', '?')} "
             f"on {mach.get('hostname', '?')} ({mach.get('cpu_count', '?')} CPUs), backend "
             f"{inv.get('backend', '?')}; invbench {versions.get('invbench', '?')}, git {commit}, "
             f"numpy {versions.get('numpy', '?')}, torch {versions.get('torch', '?')}.")

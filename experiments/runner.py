@@ -25,6 +25,7 @@ import numpy as np
 
 from invbench.envs.spec import InstanceSpec, spec_from_dict
 
+from .interrupts import finish_first
 from .store import ResultStore, collect_metadata
 from .suite import Suite
 
@@ -343,7 +344,7 @@ def run_bench(suite: Suite, out: str | Path, *, backend: str = "local", workers:
         p["artefact_dir"] = str(out / "agents" / c.cell_id)
         payloads.append(p)
     failed: list[str] = []
-    ran = 0
+    ran, completed = 0, False
     bar = tqdm(total=len(cells), initial=len(cells) - len(pending), desc=suite.name, unit="cell",
                disable=None if progress else True, dynamic_ncols=True)  # None: off when not a terminal
     try:
@@ -360,11 +361,13 @@ def run_bench(suite: Suite, out: str | Path, *, backend: str = "local", workers:
                                 len(cells))
             tqdm.write(line)
             sys.stdout.flush()
+        completed = True
     finally:
-        bar.close()
-        table = store.write_table(suite)
-        info["finished"] = _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
-        info["ran"], info["failed"] = ran, len(failed)
-        store.add_invocation(info)
+        with finish_first():  # a SIGTERM or Ctrl-C now waits until the results are written
+            bar.close()
+            table = store.write_table(suite)
+            info["finished"] = _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+            info["ran"], info["failed"], info["completed"] = ran, len(failed), completed
+            store.add_invocation(info)
     return BenchResult(out, suite.name, len(cells), len(cells) - len(pending), ran, failed,
                        time.perf_counter() - t0, table)

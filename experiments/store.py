@@ -2,8 +2,11 @@
 
 Layout of a results folder DIR:
     DIR/suite.toml          the suite as run, every instance written out inline
-    DIR/cells/ID.json       one finished cell (written atomically; its presence = done)
+    DIR/cells/ID.json       one finished cell (written atomically, with its own digest; its
+                            presence = done)
     DIR/failed/ID.json      a cell that raised; retried by the next run
+    DIR/damaged/            cell files that could not be trusted (unreadable, incomplete or
+                            edited), moved aside with a line in damaged/log.txt; their cells rerun
     DIR/results.csv         one row per cell of the suite (rebuilt from cells/), and .parquet
     DIR/run.json            metadata: versions, git commit, command lines, machine
 The table is always rebuilt from the cell files, so a run killed at any moment loses at most
@@ -11,19 +14,22 @@ the cells that were still running, and a rerun never duplicates a row.
 """
 from __future__ import annotations
 
+import datetime as _dt
 import json
 import math
 import os
+import sys
 import tempfile
-from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Iterable
+from typing import Any, Callable, Iterable
 
 import pandas as pd
 
 from invbench.envs.errors import SpecError
 
+from .cellfile import DamagedCell, decode_cell, encode_cell
 from .suite import Cell, Suite, load_suite
+from .tables import Comparison, compare_results, read_table, write_results  # noqa: F401  (re-exported)
 
 INSTANCE_COLUMNS = ["suite", "instance", "model", "lead_time", "holding_cost", "shortage_cost",
                     "unit_order_cost", "fixed_order_cost", "order_cap_units", "case_pack",
@@ -42,6 +48,7 @@ def atomic_write(path: Path, data: str | bytes) -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
+        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; results follow the usual umask
         with os.fdopen(fd, "wb") as f:
             f.write(data.encode() if isinstance(data, str) else data)
             f.flush()
@@ -50,6 +57,12 @@ def atomic_write(path: Path, data: str | bytes) -> None:
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def to_jsonable(obj: Any) -> Any:
@@ -68,18 +81,26 @@ def to_jsonable(obj: Any) -> Any:
 
 
 class ResultStore:
-    """A results folder. `open(suite)` binds it to one suite; a different suite is refused."""
+    """A results folder. `open(suite)` binds it to one suite; a different suite is refused.
 
-    def __init__(self, root: str | Path) -> None:
+    `warn` receives one line for each cell file moved aside as damaged (default: stderr).
+    """
+
+    def __init__(self, root: str | Path, warn: Callable[[str], None] | None = None) -> None:
         self.root = Path(root)
         self.cells_dir = self.root / "cells"
         self.failed_dir = self.root / "failed"
+        self.damaged_dir = self.root / "damaged"
+        self.warn = warn or (lambda line: print(line, file=sys.stderr, flush=True))
 
     # ------------------------------------------------------------------ binding
     def open(self, suite: Suite) -> None:
         suite_file = self.root / "suite.toml"
         if suite_file.is_file():
-            old = load_suite(suite_file)
+            try:
+                old = load_suite(suite_file)
+            except SpecError as e:
+                raise SpecError(f"--out: {suite_file} cannot be read ({e}); choose another folder") from None
             if old.name != suite.name:
                 raise SpecError(f"--out: {self.root} holds results of suite {old.name!r}, not "
                                 f"{suite.name!r}; choose another folder")
@@ -87,6 +108,8 @@ class ResultStore:
         self.failed_dir.mkdir(parents=True, exist_ok=True)
         for stray in list(self.cells_dir.glob(".*.tmp")) + list(self.failed_dir.glob(".*.tmp")):
             stray.unlink(missing_ok=True)  # left by a run killed in the middle of a write
+        for stray in self.root.glob(".results.*.tmp"):
+            stray.unlink(missing_ok=True)
         atomic_write(suite_file, suite.to_toml())
 
     def suite(self) -> Suite:
@@ -96,33 +119,58 @@ class ResultStore:
         return load_suite(f)
 
     # ------------------------------------------------------------------ cells
-    def _read(self, path: Path) -> dict[str, Any] | None:
+    def _scan(self, folder: Path) -> dict[str, dict[str, Any]]:
+        """cell id -> record of every trustworthy file in `folder`; the others are moved aside."""
+        out = {}
+        for p in sorted(folder.glob("*.json")):
+            try:
+                out[p.stem] = decode_cell(p)
+            except DamagedCell as e:
+                self._move_aside(p, str(e))
+        return out
+
+    def _move_aside(self, path: Path, reason: str) -> None:
+        self.damaged_dir.mkdir(parents=True, exist_ok=True)
+        stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%Y%m%dT%H%M%S%fZ")
+        target = self.damaged_dir / f"{path.parent.name}-{path.stem}-{stamp}.json"
         try:
-            return json.loads(path.read_text())
-        except (OSError, json.JSONDecodeError):
-            return None  # unreadable: treated as not finished, so it is simply run again
+            os.replace(path, target)
+        except FileNotFoundError:
+            return  # already gone (another reader moved it)
+        line = f"{target.name}\t{path.parent.name}/{path.name}\t{reason}\n"
+        with open(self.damaged_dir / "log.txt", "a", encoding="utf-8") as f:
+            f.write(line)
+        self.warn(f"invbench: warning: {path.parent.name}/{path.name} is damaged ({reason}); moved to "
+                  f"{target.relative_to(self.root)}, its cell will be run again")
+
+    def damaged(self) -> list[tuple[str, str, str]]:
+        """(file in damaged/, original file, reason) of every file ever moved aside here."""
+        log = self.damaged_dir / "log.txt"
+        try:
+            lines = log.read_text(encoding="utf-8", errors="replace").splitlines()
+        except OSError:
+            return []
+        return [tuple(ln.split("\t", 2)) for ln in lines if ln.count("\t") >= 2]  # type: ignore[misc]
 
     def finished(self) -> dict[str, dict[str, Any]]:
         """cell id -> record of every successfully finished cell in the folder."""
-        out = {}
-        for p in sorted(self.cells_dir.glob("*.json")):
-            rec = self._read(p)
-            if rec is not None and rec.get("status") == "ok":
-                out[p.stem] = rec
-        return out
+        return {k: r for k, r in self._scan(self.cells_dir).items() if r.get("status") == "ok"}
 
     def failed(self) -> dict[str, dict[str, Any]]:
-        out = {}
-        for p in sorted(self.failed_dir.glob("*.json")):
-            rec = self._read(p)
-            if rec is not None:
-                out[p.stem] = rec
-        return out
+        return self._scan(self.failed_dir)
 
     def save(self, record: dict[str, Any]) -> None:
-        cid = record["cell_id"]
-        blob = json.dumps(to_jsonable(record), indent=1, sort_keys=True)
-        if record.get("status") == "ok":
+        """Store one record; a record that breaks the cell format is stored as a failure."""
+        rec = to_jsonable(record)
+        try:
+            blob = encode_cell(rec)
+        except DamagedCell as e:
+            # e.g. a custom cell that returned no finite cost: kept as a failure, retried later
+            rec = {**rec, "status": "failed", "error": f"invalid cell result: {e}",
+                   **{k: str(rec.get(k) or "") for k in ("suite", "instance", "policy", "kind")}}
+            blob = encode_cell(rec)
+        cid = rec["cell_id"]
+        if rec.get("status") == "ok":
             atomic_write(self.cells_dir / f"{cid}.json", blob)
             (self.failed_dir / f"{cid}.json").unlink(missing_ok=True)
         else:
@@ -145,19 +193,9 @@ class ResultStore:
         return build_table(self.records(cells), {c.cell_id: c for c in cells})
 
     def write_table(self, suite: Suite | None = None) -> pd.DataFrame:
+        """Rebuild the table from the cell files and write results.csv and results.parquet."""
         df = self.table(suite)
-        atomic_write(self.root / "results.csv", df.to_csv(index=False))
-        try:
-            import pyarrow  # noqa: F401  (optional: Parquet only when pyarrow is there)
-        except ImportError:
-            return df
-        fd, tmp = tempfile.mkstemp(dir=self.root, prefix=".results.parquet.", suffix=".tmp")
-        os.close(fd)
-        try:
-            df.to_parquet(tmp, index=False)
-            os.replace(tmp, self.root / "results.parquet")
-        finally:
-            Path(tmp).unlink(missing_ok=True)
+        write_results(self.root, df)
         return df
 
     # ------------------------------------------------------------------ metadata
@@ -165,10 +203,19 @@ class ResultStore:
         f = self.root / "run.json"
         if f.is_file():
             try:
-                return json.loads(f.read_text())
-            except json.JSONDecodeError:
-                pass
+                meta = json.loads(f.read_text(encoding="utf-8"))
+            except (OSError, ValueError):  # not UTF-8 or not JSON: keep it aside, start afresh
+                meta = None
+            if isinstance(meta, dict) and isinstance(meta.get("invocations", []), list):
+                return meta
+            self._move_aside_meta(f)
         return {"invocations": []}
+
+    def _move_aside_meta(self, f: Path) -> None:
+        self.damaged_dir.mkdir(parents=True, exist_ok=True)
+        stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%Y%m%dT%H%M%S%fZ")
+        os.replace(f, self.damaged_dir / f"run-{stamp}.json")
+        self.warn(f"invbench: warning: run.json is damaged; moved to damaged/run-{stamp}.json, a new one is started")
 
     def add_invocation(self, info: dict[str, Any]) -> None:
         """Append one bench invocation (a first run or a resume) to run.json."""
@@ -214,18 +261,6 @@ def build_table(records: list[dict[str, Any]], cells: dict[str, Cell]) -> pd.Dat
     return df
 
 
-def read_table(path: str | Path) -> pd.DataFrame:
-    """A results table from a folder (results.csv inside it) or a CSV/Parquet file."""
-    p = Path(path)
-    if p.is_dir():
-        p = p / "results.csv"
-    if not p.is_file():
-        raise SpecError(f"results: {str(p)!r} does not exist")
-    if p.suffix == ".parquet":
-        return pd.read_parquet(p)
-    return pd.read_csv(p, keep_default_na=True)
-
-
 def collect_metadata() -> dict[str, Any]:
     """Package versions, git commit of the code that ran, and the machine."""
     import platform
@@ -260,72 +295,3 @@ def collect_metadata() -> dict[str, Any]:
                "processor": platform.machine(), "cpu_count": os.cpu_count(),
                "memory_gb": round(mem_gb, 1) if mem_gb else None, "executable": sys.executable}
     return {"versions": versions, "git": git, "machine": machine}
-
-
-@dataclass
-class Comparison:
-    """Outcome of comparing a results table with a reference table, cell by cell."""
-
-    compared: int
-    differences: list[str]
-    missing: list[str]
-    extra: list[str]
-    notes: list[str]
-
-    @property
-    def ok(self) -> bool:
-        return not self.differences and not self.missing
-
-    def lines(self) -> list[str]:
-        out = [f"DIFF {d}" for d in self.differences] + [f"MISSING {m}" for m in self.missing]
-        out += [f"note: {n}" for n in self.notes]
-        if self.extra:
-            out.append(f"note: {len(self.extra)} cell(s) not in the reference were not compared")
-        out.append(f"bench-compare: {self.compared} cells compared, {len(self.differences)} differ, "
-                   f"{len(self.missing)} missing -> {'OK' if self.ok else 'MISMATCH'}")
-        return out
-
-    def to_dict(self) -> dict[str, Any]:
-        return {"compared": self.compared, "differences": self.differences, "missing": self.missing,
-                "extra": self.extra, "notes": self.notes, "ok": self.ok}
-
-
-def compare_results(new: pd.DataFrame, ref: pd.DataFrame, rtol_exact: float = 2e-6) -> Comparison:
-    """Exact cells: |new - ref| <= rtol_exact * |ref|. Simulated cells: within the 95 % interval of
-    the difference of two independent estimates, sqrt(ci_new^2 + ci_ref^2)."""
-
-    def index(df: pd.DataFrame) -> dict[tuple, Any]:
-        ok = df[df["status"] == "ok"] if "status" in df.columns else df
-        return {(str(r.instance), str(r.policy), int(r.seed)): r for r in ok.itertuples(index=False)}
-
-    a, b = index(new), index(ref)
-    diffs, missing, notes = [], [], []
-    for k, r in b.items():
-        label = f"{k[0]} | {k[1]} seed {k[2]}"
-        n = a.get(k)
-        if n is None:
-            missing.append(label)
-            continue
-        if n.method != r.method:
-            diffs.append(f"{label}: method {n.method} vs reference {r.method}")
-            continue
-        delta = float(n.cost) - float(r.cost)
-        if r.method == "exact":
-            tol = rtol_exact * abs(float(r.cost)) + 1e-12
-        else:
-            tol = math.hypot(_f(n.ci_halfwidth), _f(r.ci_halfwidth))
-        if not abs(delta) <= tol:
-            diffs.append(f"{label}: cost {float(n.cost):.6f} vs reference {float(r.cost):.6f} "
-                         f"(diff {delta:+.3g}, tolerance {tol:.3g}, {r.method})")
-        elif str(n.params) != str(r.params) and n.kind != "agent":
-            notes.append(f"{label}: parameters {n.params} vs reference {r.params} (cost within tolerance)")
-    extra = [f"{k[0]} | {k[1]} seed {k[2]}" for k in a if k not in b]
-    return Comparison(len(b) - len(missing), diffs, missing, extra, notes)
-
-
-def _f(v: Any) -> float:
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        return 0.0
-    return f if math.isfinite(f) else 0.0

@@ -20,16 +20,23 @@ import tomli_w
 from invbench.envs.errors import SpecError
 from invbench.envs.spec import MODELS, InstanceSpec, load_spec, spec_from_dict
 
+from . import suite_checks as check
+
 SUITES_DIR = Path(__file__).resolve().parent / "suites"
 #: Bumped when a cell's result format changes, so old results are not mistaken for new ones.
 CELL_FORMAT = 1
 KINDS = ("optimum", "classical", "agent", "custom")
-EVAL_KEYS = {"method": str, "replications": int, "periods": int, "warmup": int}
-EVAL_METHODS = ("auto", "exact", "simulate")
 SUITE_KEYS = ("name", "description", "seeds", "sweep", "invented")
-POLICY_KEYS = ("kind", "name", "label", "params", "agent", "steps", "settings", "function",
-               "seeds", "evaluation", "models", "cpu_seconds")
+_ANY_KIND = ("kind", "label", "seeds", "evaluation", "models")
+#: The keys each kind of `[[policies]]` entry uses; any other key is refused as a likely slip.
+KIND_KEYS = {"optimum": ("name", *_ANY_KIND),
+             "classical": ("name", "params", *_ANY_KIND),
+             "agent": ("agent", "steps", "settings", "cpu_seconds", *_ANY_KIND),
+             "custom": ("function", "name", "params", *_ANY_KIND)}
+POLICY_KEYS = tuple(dict.fromkeys(k for keys in KIND_KEYS.values() for k in keys))
 INSTANCE_EXTRA_KEYS = ("file", "vary")
+#: Most instances one `vary` grid may expand to.
+MAX_GRID = 10_000
 
 
 @dataclass(frozen=True)
@@ -159,84 +166,54 @@ def load_suite(source: str | Path) -> Suite:
     path = Path(source)
     if not path.is_file():
         cand = SUITES_DIR / f"{source}.toml"
-        if not cand.is_file():
+        if not check.NAME_RE.fullmatch(str(source)) or not cand.is_file():
             raise SpecError(f"suite: {str(source)!r} is neither a file nor a packaged suite "
                             f"(packaged: {', '.join(packaged_suites())})")
         path = cand
     try:
-        data = tomllib.loads(path.read_text())
+        raw = path.read_bytes()
+    except OSError as e:
+        raise SpecError(f"suite: {path} cannot be read ({e.strerror or e})") from None
+    try:
+        txt = raw.decode("utf-8")
+    except UnicodeDecodeError as e:
+        raise SpecError(f"suite: {path} is not UTF-8 text (byte 0x{raw[e.start]:02x} at offset {e.start}); "
+                        f"a suite is a TOML file") from None
+    try:
+        data = tomllib.loads(txt)
     except tomllib.TOMLDecodeError as e:
-        raise SpecError(f"suite: {path} is not valid TOML ({e})") from None
+        raise SpecError(f"suite: {path} is not valid TOML ({check.first_line(e)})") from None
     return suite_from_dict(data, base_dir=path.parent, source=str(path))
 
 
 def suite_from_dict(data: Mapping[str, Any], base_dir: Path | None = None, source: str = "") -> Suite:
+    """A validated Suite; any problem is a one-line SpecError naming the field."""
+    try:
+        return _suite_from_dict(data, base_dir, source)
+    except SpecError as e:
+        raise check.one_line(e) from None
+
+
+def _suite_from_dict(data: Mapping[str, Any], base_dir: Path | None, source: str) -> Suite:
+    data = check.table(data, "suite file", required=True)
     for key in data:
         if key not in ("suite", "evaluation", "instances", "policies"):
-            raise SpecError(f"{key}: unknown top-level key (allowed: suite, evaluation, instances, policies)")
-    head = _table(data.get("suite"), "suite", required=True)
-    _known(head, SUITE_KEYS, "suite")
-    name = head.get("name")
-    if not isinstance(name, str) or not name.strip() or "/" in name:
-        raise SpecError(f"suite.name: required, a non-empty string without '/', got {name!r}")
-    desc = head.get("description", "")
-    if not isinstance(desc, str):
-        raise SpecError(f"suite.description: must be a string, got {desc!r}")
-    seeds = _seeds(head.get("seeds", [0]), "suite.seeds")
+            raise SpecError(f"{check.key(key)}: unknown top-level key (allowed: suite, evaluation, instances, policies)")
+    head = check.table(data.get("suite"), "suite", required=True)
+    check.known(head, SUITE_KEYS, "suite")
+    name = check.name(head.get("name"), "suite.name")
+    desc = check.text(head.get("description", ""), "suite.description")
+    seeds = check.seeds(head.get("seeds", [0]), "suite.seeds")
     sweep = head.get("sweep", "")
-    if sweep not in ("", "lead_time"):
-        raise SpecError(f"suite.sweep: must be \"lead_time\" or absent, got {sweep!r}")
+    if not isinstance(sweep, str) or sweep not in ("", "lead_time"):
+        raise SpecError(f"suite.sweep: must be \"lead_time\" or absent, got {check.short(sweep)}")
     invented = head.get("invented", False)
     if not isinstance(invented, bool):
-        raise SpecError(f"suite.invented: must be true or false, got {invented!r}")
-    evaluation = _evaluation(data.get("evaluation", {}), "evaluation")
+        raise SpecError(f"suite.invented: must be true or false, got {check.short(invented)}")
+    evaluation = check.evaluation(data.get("evaluation", {}), "evaluation")
     instances = _instances(data.get("instances"), base_dir or Path.cwd())
-    policies = _policies(data.get("policies"), seeds)
-    return Suite(name.strip(), desc, instances, policies, evaluation, sweep, invented, source)
-
-
-def _table(v: Any, where: str, required: bool = False) -> dict[str, Any]:
-    if v is None and not required:
-        return {}
-    if not isinstance(v, Mapping):
-        raise SpecError(f"{where}: must be a table" + (" (required)" if required else ""))
-    return dict(v)
-
-
-def _known(d: Mapping[str, Any], allowed: tuple[str, ...], where: str) -> None:
-    for k in d:
-        if k not in allowed:
-            raise SpecError(f"{where}.{k}: unknown key (allowed: {', '.join(allowed)})")
-
-
-def _int(v: Any, where: str, lo: int) -> int:
-    if isinstance(v, bool) or not isinstance(v, int) or v < lo:
-        raise SpecError(f"{where}: must be an integer >= {lo}, got {v!r}")
-    return v
-
-
-def _seeds(v: Any, where: str) -> tuple[int, ...]:
-    if not isinstance(v, list) or not v:
-        raise SpecError(f"{where}: must be a non-empty list of integers >= 0, got {v!r}")
-    out = tuple(_int(s, where, 0) for s in v)
-    if len(set(out)) != len(out):
-        raise SpecError(f"{where}: seeds must be distinct, got {list(out)}")
-    return out
-
-
-def _evaluation(v: Any, where: str) -> dict[str, Any]:
-    d = _table(v, where)
-    out: dict[str, Any] = {}
-    for k, val in d.items():
-        if k not in EVAL_KEYS:
-            raise SpecError(f"{where}.{k}: unknown key (allowed: {', '.join(EVAL_KEYS)})")
-        if k == "method":
-            if val not in EVAL_METHODS:
-                raise SpecError(f"{where}.method: must be one of {', '.join(EVAL_METHODS)}, got {val!r}")
-            out[k] = val
-        else:
-            out[k] = _int(val, f"{where}.{k}", 0 if k == "warmup" else 1)
-    return out
+    policies = _policies(data.get("policies"), seeds, instances)
+    return Suite(name, desc, instances, policies, evaluation, sweep, invented, source)
 
 
 def _instances(v: Any, base_dir: Path) -> tuple[InstanceSpec, ...]:
@@ -245,31 +222,41 @@ def _instances(v: Any, base_dir: Path) -> tuple[InstanceSpec, ...]:
     out: list[InstanceSpec] = []
     for i, raw in enumerate(v):
         where = f"instances[{i}]"
-        d = _table(raw, where)
+        d = check.table(raw, where)
         for spec in _expand(d, where, base_dir):
             out.append(spec)
+        if len(out) > MAX_GRID:
+            raise SpecError(f"instances: more than {MAX_GRID} instances (at {where}); split the suite")
     _check_unique(out, "instances: name {!r} is used twice; give each instance its own name")
     return tuple(out)
 
 
 def _expand(d: dict[str, Any], where: str, base_dir: Path) -> list[InstanceSpec]:
     """One entry -> specs: inline, from `file =`, and/or a grid over `vary = {field = [values]}`."""
-    vary = _table(d.pop("vary", None), f"{where}.vary")
+    vary = check.table(d.pop("vary", None), f"{where}.vary")
     if "file" in d:
         f = d.pop("file")
-        if not isinstance(f, str):
-            raise SpecError(f"{where}.file: must be a path string, got {f!r}")
+        if not isinstance(f, str) or not f or "\0" in f:
+            raise SpecError(f"{where}.file: must be a path string, got {check.short(f)}")
         path = Path(f) if Path(f).is_absolute() else base_dir / f
+        if not path.is_file():
+            raise SpecError(f"{where}.file: {str(path)!r} is not a file")
         try:
             base = load_spec(path).to_dict()
         except SpecError as e:
             raise SpecError(f"{where}: {e}") from None
+        except (OSError, ValueError, TypeError, KeyError, AttributeError) as e:  # unreadable, not UTF-8, ...
+            raise SpecError(f"{where}.file: {path} cannot be read as a spec file ({check.first_line(e)})") from None
         base.update(d)
     else:
         base = d
+    grid = 1
     for k, vals in vary.items():
         if not isinstance(vals, list) or not vals:
-            raise SpecError(f"{where}.vary.{k}: must be a non-empty list of values")
+            raise SpecError(f"{where}.vary.{check.key(k)}: must be a non-empty list of values, got {check.short(vals)}")
+        grid *= len(vals)
+        if grid > MAX_GRID:
+            raise SpecError(f"{where}.vary: expands to more than {MAX_GRID} instances; split the grid")
     keys = list(vary)
     combos = itertools.product(*(vary[k] for k in keys)) if keys else [()]
     specs = []
@@ -283,12 +270,15 @@ def _expand(d: dict[str, Any], where: str, base_dir: Path) -> list[InstanceSpec]
         if keys:
             if not isinstance(name, str) or not name or "{" in name:
                 raise SpecError(f"{where}.name: with `vary`, a template naming each varied field "
-                                f"in braces is required, e.g. \"L{{lead_time}}\", got {name!r}")
+                                f"in braces is required, e.g. \"L{{lead_time}}\", got {check.short(name)}")
             inst["name"] = name
         try:
             specs.append(spec_from_dict(inst))
         except SpecError as e:
             raise SpecError(f"{where}: {e}") from None
+        except (TypeError, ValueError, KeyError, AttributeError, OverflowError) as e:
+            # the spec loader should have named the field; still one line, never a traceback
+            raise SpecError(f"{where}: not a valid instance ({type(e).__name__}: {check.first_line(e)})") from None
     return specs
 
 
@@ -303,7 +293,7 @@ def _set_field(inst: dict[str, Any], key: str, val: Any, where: str) -> None:
     for p in parts[:-1]:
         nxt = node.get(p)
         if not isinstance(nxt, dict):
-            raise SpecError(f"{where}.vary.{key}: {p!r} is not a table of the instance")
+            raise SpecError(f"{where}.vary.{check.key(key)}: {p!r} is not a table of the instance")
         node = nxt
     node[parts[-1]] = val
 
@@ -317,55 +307,51 @@ def _check_unique(items: list[Any], message: str) -> None:
         seen.add(item.label)
 
 
-def _policies(v: Any, default_seeds: tuple[int, ...]) -> tuple[PolicyEntry, ...]:
+def _policies(v: Any, default_seeds: tuple[int, ...], instances: tuple[InstanceSpec, ...]) -> tuple[PolicyEntry, ...]:
     if not isinstance(v, list) or not v:
         raise SpecError("policies: need at least one [[policies]] entry")
-    out = [_policy(_table(raw, f"policies[{i}]"), f"policies[{i}]", default_seeds)
+    out = [_policy(check.table(raw, f"policies[{i}]"), f"policies[{i}]", default_seeds, instances)
            for i, raw in enumerate(v)]
     _check_unique(out, "policies: label {!r} is used twice; set `label` to tell them apart")
     return tuple(out)
 
 
-def _policy(d: dict[str, Any], where: str, default_seeds: tuple[int, ...]) -> PolicyEntry:
-    _known(d, POLICY_KEYS, where)
+def _policy(d: dict[str, Any], where: str, default_seeds: tuple[int, ...],
+            instances: tuple[InstanceSpec, ...]) -> PolicyEntry:
+    check.known(d, POLICY_KEYS, where)
     kind = d.get("kind") or _infer_kind(d)
-    if kind not in KINDS:
-        raise SpecError(f"{where}.kind: must be one of {', '.join(KINDS)}, got {kind!r}")
-    name = d.get("name", "")
-    if not isinstance(name, str):
-        raise SpecError(f"{where}.name: must be a string, got {name!r}")
+    if not isinstance(kind, str) or kind not in KINDS:
+        raise SpecError(f"{where}.kind: must be one of {', '.join(KINDS)}, got {check.short(kind)}")
+    check.known(d, KIND_KEYS[kind], where)
+    name = check.text(d.get("name", ""), f"{where}.name")
     params = d.get("params")
     if params is not None:
-        params = _table(params, f"{where}.params")
-    settings = _table(d.get("settings"), f"{where}.settings")
-    evaluation = _evaluation(d.get("evaluation", {}), f"{where}.evaluation")
-    seeds = _seeds(d["seeds"], f"{where}.seeds") if "seeds" in d else default_seeds
+        params = check.table(params, f"{where}.params")
+    settings = check.table(d.get("settings"), f"{where}.settings")
+    evaluation = check.evaluation(d.get("evaluation", {}), f"{where}.evaluation")
+    seeds = check.seeds(d["seeds"], f"{where}.seeds") if "seeds" in d else default_seeds
     models = d.get("models", [])
-    if not isinstance(models, list) or any(m not in MODELS for m in models):
-        raise SpecError(f"{where}.models: must be a list from {', '.join(MODELS)}, got {models!r}")
+    if not isinstance(models, list) or any(not isinstance(m, str) or m not in MODELS for m in models):
+        raise SpecError(f"{where}.models: must be a list from {', '.join(MODELS)}, got {check.short(models)}")
     agent, steps, function, cpu = "", 0, "", 0.0
     if kind == "optimum":
+        if name not in ("", "optimum"):
+            raise SpecError(f"{where}.name: an optimum entry is named \"optimum\", got {check.short(name)}")
         seeds = (0,)  # the certified optimum does not depend on a seed: one cell per instance
         name = "optimum"
     elif kind == "classical":
         if not name:
             raise SpecError(f"{where}.name: required for a classical policy")
-        _check_classical(name, where)
+        check.classical(name, params, [s for s in instances if not models or s.model in models], where)
     elif kind == "agent":
         agent = d.get("agent", "")
-        if not isinstance(agent, str) or not agent:
-            raise SpecError(f"{where}.agent: required for an agent entry, e.g. \"ppo\"")
-        steps = _int(d.get("steps"), f"{where}.steps", 1)
-        cpu = d.get("cpu_seconds", 0.0)
-        if isinstance(cpu, bool) or not isinstance(cpu, (int, float)) or cpu < 0:
-            raise SpecError(f"{where}.cpu_seconds: must be a number >= 0 (0: no cap), got {cpu!r}")
+        check.agent(agent, settings, where)
+        steps = check.integer(d.get("steps"), f"{where}.steps", 1, 10**12)
+        cpu = check.number(d.get("cpu_seconds", 0.0), f"{where}.cpu_seconds", 0.0, 10.0**9, " (0: no cap)")
     else:
-        function = d.get("function", "")
-        if not isinstance(function, str) or ":" not in function:
-            raise SpecError(f"{where}.function: required for a custom entry, as \"module:callable\"")
+        function = check.function(d.get("function", ""), f"{where}.function")
     label = d.get("label") or _default_label(kind, name, agent, function, params)
-    if not isinstance(label, str):
-        raise SpecError(f"{where}.label: must be a string, got {label!r}")
+    check.text(label, f"{where}.label")
     return PolicyEntry(kind, label, name, params, agent, steps, settings, function, seeds, evaluation,
                        tuple(models), float(cpu))
 
@@ -388,11 +374,3 @@ def _default_label(kind: str, name: str, agent: str, function: str, params: Any)
     if params:
         return f"{name}(" + ",".join(f"{k}={v}" for k, v in params.items()) + ")"
     return name
-
-
-def _check_classical(name: str, where: str) -> None:
-    from invbench.baselines.policies.registry import policy_names  # late: keeps suite loading light
-
-    names = list(policy_names())
-    if name not in names:
-        raise SpecError(f"{where}.name: must be one of optimum, {', '.join(names)}, got {name!r}")

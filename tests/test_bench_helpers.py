@@ -86,6 +86,11 @@ def search_base_stock(spec: InstanceSpec, params: dict[str, Any], seed: int, eva
             "learning_curve": curve, "policy_map": policy_map(spec, TinyBaseStock(spec, S))}
 
 
+def broken_cell(spec: InstanceSpec, params: dict[str, Any], seed: int, evaluation: dict[str, Any]) -> dict[str, Any]:
+    """Custom cell that fails while running (a failure only the run can reveal)."""
+    raise RuntimeError(f"measurement broke on {spec.label}")
+
+
 def instance(name: str, model: str = "backorder", L: int = 1, mean: float = 3.0, p: float = 9.0) -> dict[str, Any]:
     return {"name": name, "model": model, "lead_time": L, "holding_cost": 1.0, "shortage_cost": p,
             "demand": {"distribution": "poisson", "mean": mean}}

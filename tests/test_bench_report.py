@@ -68,7 +68,7 @@ def _chromium() -> str:
     exe = shutil.which("chromium") or shutil.which("chromium-browser")
     if exe is None:
         pytest.fail("headless Chromium is needed for this test: apt-get install -y chromium "
-                    "(.ci/run installs it when missing)")
+                    "(make test installs it when missing and it can)")
     return exe
 
 

@@ -79,7 +79,7 @@ def test_process_pool_gives_the_inline_table(tmp_path):
 def test_failing_cells_are_recorded_and_retried(tmp_path):
     pols = [sim_policy("good", 8),
             {"function": "tests.test_bench_helpers:no_such_function", "label": "missing"},
-            {"agent": "no-such-agent", "steps": 10, "label": "bad-agent"}]
+            {"function": "tests.test_bench_helpers:broken_cell", "label": "broken"}]
     suite = _suite(tmp_path, policies=pols, seeds=(0,))
     out = tmp_path / "run"
     res = run_bench(suite, out, workers=1, progress=False)
@@ -88,8 +88,8 @@ def test_failing_cells_are_recorded_and_retried(tmp_path):
     assert (df.loc[df["policy"] == "good", "status"] == "ok").all()
     errs = df.loc[df["policy"] == "missing", "error"].tolist()
     assert all("no_such_function" in e for e in errs)
-    agent_errs = df.loc[df["policy"] == "bad-agent", "error"].tolist()
-    assert all("no-such-agent" in e for e in agent_errs), agent_errs
+    broken_errs = df.loc[df["policy"] == "broken", "error"].tolist()
+    assert all(e.startswith("RuntimeError: measurement broke on") for e in broken_errs), broken_errs
     again = run_bench(suite, out, workers=1, progress=False)
     assert again.ran == 4 and again.already_done == 2  # failures are run again, successes kept
     assert len(again.table) == 6
@@ -123,5 +123,5 @@ def test_cli_bench_writes_table_report_and_exit_codes(tmp_path, capsys):
     assert main(["bench", str(path), "--out", str(out), "--workers", "0"]) == 2
     assert main(["bench", str(path), "--out", str(out), "--backend", "slurm"]) == 2
     err = capsys.readouterr().err
-    assert "--workers: must be >= 1" in err and "--backend: must be one of local, ray" in err
+    assert "--workers: must be an integer in [1, 1024], got 0" in err and "--backend: must be one of local, ray" in err
     assert "Traceback" not in err

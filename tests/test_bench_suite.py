@@ -111,6 +111,20 @@ def test_instance_from_file(tmp_path):
     ({"policies": [{"name": "base_stock"}, {"name": "base_stock"}]}, "policies: label"),
     ({"policies": [{"name": "base_stock", "models": ["retail"]}]}, "policies[0].models"),
     ({"extra": 1}, "extra"),
+    # checked when loaded, not when the cell runs (formerly a failing cell)
+    ({"policies": [{"agent": "no-such-agent", "steps": 10}]}, "policies[0].agent: must be one of"),
+    ({"policies": [{"agent": "ppo", "steps": 10, "settings": {"learning_rate": -1.0}}]},
+     "policies[0].settings.learning_rate: must be"),
+    ({"policies": [{"agent": "ppo", "steps": 10, "settings": {"colour": 1}}]}, "policies[0].settings.colour"),
+    ({"policies": [{"agent": "ppo", "steps": 10, "cpu_seconds": float("nan")}]}, "policies[0].cpu_seconds"),
+    ({"policies": [{"name": "base_stock", "params": {"S": -3}}]}, "policies[0].params.S: must be"),
+    ({"policies": [{"name": "base_stock", "params": {"level": 3}}]}, "policies[0].params.level: unknown"),
+    ({"policies": [{"name": "s_S", "params": {"s": "low", "S": 9}}]}, "policies[0].params.s: must be"),
+    ({"policies": [{"name": "base_stock", "settings": {"a": 1}}]}, "policies[0].settings: unknown key"),
+    ({"evaluation": {"replications": 1}}, "evaluation.replications: must be an integer in [2,"),
+    ({"suite": {"name": ".."}}, "suite.name"),
+    ({"suite": {"name": "a b"}}, "suite.name"),
+    ({"suite": {"name": "x", "seeds": [2**40]}}, "suite.seeds"),
 ])
 def test_bad_suites_name_the_field(change, field):
     with pytest.raises(SpecError) as e:
