@@ -147,7 +147,7 @@ def _custom_cell(spec: InstanceSpec, payload: dict[str, Any]) -> dict[str, Any]:
     d = got.to_dict() if hasattr(got, "to_dict") else dict(got)
     if "cost" not in d:
         raise ValueError(f"custom cell: {pol['function']} returned no 'cost'")
-    out = {k: d.get(k) for k in ("cost", "ci_halfwidth", "method", "holding", "shortage", "ordering")}
+    out = {k: d.get(k) for k in ("cost", "ci_halfwidth", "method", *spec.model_def.cost_parts)}
     out["params"] = d.get("params", dict(pol.get("params") or {}))
     out["extras"] = {k: d[k] for k in ("policy_map", "learning_curve") if k in d}
     return out
@@ -169,10 +169,10 @@ def evaluate_policy(spec: InstanceSpec, policy: Any, payload: dict[str, Any]) ->
     kw = dict(payload.get("evaluation") or {})
     ev = evaluate(spec, policy, seed=int(payload["seed"]), **kw)
     method = getattr(ev, "method", "")
+    parts = getattr(ev, "parts", None) or {}
     return {"cost": float(ev.cost), "ci_halfwidth": float(getattr(ev, "ci_halfwidth", 0.0) or 0.0),
             "method": "simulated" if method.startswith("sim") else method,
-            "holding": _num(getattr(ev, "holding", None)), "shortage": _num(getattr(ev, "shortage", None)),
-            "ordering": _num(getattr(ev, "ordering", None)), "note": getattr(ev, "note", "") or ""}
+            **{k: _num(parts.get(k)) for k in spec.model_def.cost_parts}, "note": getattr(ev, "note", "") or ""}
 
 
 def _exact_parts(spec: InstanceSpec, policy: Any) -> dict[str, float] | None:
@@ -187,7 +187,7 @@ def _exact_parts(spec: InstanceSpec, policy: Any) -> dict[str, float] | None:
         ev = evaluate_exact(spec, policy)
     except BudgetError:
         return None
-    return {"holding": float(ev.holding), "shortage": float(ev.shortage), "ordering": float(ev.ordering)}
+    return {k: float(v) for k, v in ev.parts.items()}
 
 
 def _solver_summary(d: dict[str, Any]) -> dict[str, Any]:
@@ -214,7 +214,7 @@ def policy_params(policy: Any, given: Any) -> dict[str, Any]:
 
 
 def map_states(spec: InstanceSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Grid of states for a policy map: on-hand x pipeline total (lost sales, L >= 2).
+    """Grid of states for a policy map: on-hand x pipeline total (stock-and-pipeline states, L >= 2).
 
     The pipeline total is spread evenly over the L - 1 orders in transit (the remainder on the
     oldest), a typical shape of the pipeline when demand is steady. Axes reach about the
@@ -237,8 +237,9 @@ def map_states(spec: InstanceSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 def policy_map(spec: InstanceSpec, policy: Any) -> dict[str, Any] | None:
     """Orders of a policy over `map_states` (rows: pipeline total, columns: on-hand), or None."""
-    if spec.model != "lost_sales" or spec.lead_time < 2:
-        return None
+    model = spec.model_def
+    if not model.stock_then_pipeline or model.signed_level or spec.state_dim < 2:
+        return None  # the map's axes are on-hand stock (>= 0) and units in transit
     on_hand, pipeline, states = map_states(spec)
     try:
         orders = np.asarray(policy.act(states)).reshape(len(pipeline), len(on_hand))

@@ -26,6 +26,7 @@ from typing import Any, Callable, Iterable
 import pandas as pd
 
 from invbench.envs.errors import SpecError
+from invbench.envs.models import COST_PARTS, MODEL_KEYS
 
 from .cellfile import DamagedCell, decode_cell, encode_cell
 from .suite import Cell, Suite, load_suite
@@ -33,10 +34,11 @@ from .tables import Comparison, compare_results, read_table, write_results  # no
 
 INSTANCE_COLUMNS = ["suite", "instance", "model", "lead_time", "holding_cost", "shortage_cost",
                     "unit_order_cost", "fixed_order_cost", "order_cap_units", "case_pack",
-                    "discount", "demand", "demand_mean"]
+                    "discount", "demand", "demand_mean", *MODEL_KEYS]
 POLICY_COLUMNS = ["policy", "kind", "policy_name", "params", "seed"]
+#: cost parts: one column per named part of any registered model (empty where a model has none)
 RESULT_COLUMNS = ["cost", "ci_halfwidth", "method", "gap", "gap_ci", "optimum", "lower", "upper",
-                  "holding", "shortage", "ordering", "status", "error", "note"]
+                  *COST_PARTS, "status", "error", "note"]
 #: Columns that differ between two runs of the same cells; comparisons leave them out.
 TIMING_COLUMNS = ["wall_seconds", "cpu_seconds", "worker", "finished_at"]
 COLUMNS = INSTANCE_COLUMNS + POLICY_COLUMNS + RESULT_COLUMNS + TIMING_COLUMNS + ["cell_id"]
@@ -246,7 +248,7 @@ def build_table(records: list[dict[str, Any]], cells: dict[str, Cell]) -> pd.Dat
                        shortage_cost=spec.shortage_cost, unit_order_cost=spec.unit_order_cost,
                        fixed_order_cost=spec.fixed_order_cost, order_cap_units=spec.order_cap_units,
                        case_pack=spec.case_pack, discount=spec.discount,
-                       demand=spec.demand.describe(), demand_mean=spec.demand.mean)
+                       demand=spec.demand.describe(), demand_mean=spec.demand.mean, **dict(spec.extra))
         opt = optimum.get(r.get("instance"))
         cost = r.get("cost")
         if opt is not None and cost is not None and opt > 0:
@@ -255,8 +257,8 @@ def build_table(records: list[dict[str, Any]], cells: dict[str, Cell]) -> pd.Dat
             row["gap_ci"] = (r.get("ci_halfwidth") or 0.0) / opt
         rows.append(row)
     df = pd.DataFrame(rows, columns=COLUMNS)
-    for c in ("cost", "ci_halfwidth", "gap", "gap_ci", "optimum", "lower", "upper", "holding",
-              "shortage", "ordering", "wall_seconds", "cpu_seconds"):
+    for c in ("cost", "ci_halfwidth", "gap", "gap_ci", "optimum", "lower", "upper", *COST_PARTS,
+              "wall_seconds", "cpu_seconds"):
         df[c] = pd.to_numeric(df[c], errors="coerce").astype("float64")
     return df
 

@@ -139,6 +139,8 @@ class Suite:
             for spec in self.instances:
                 if p.models and spec.model not in p.models:
                     continue
+                if p.kind == "classical" and not _supports(p.name, spec.model):
+                    continue  # the policy is not defined for this model
                 for seed in p.seeds:
                     out.append(Cell(self.name, spec, p, seed, ev))
         return out
@@ -374,3 +376,8 @@ def _default_label(kind: str, name: str, agent: str, function: str, params: Any)
     if params:
         return f"{name}(" + ",".join(f"{k}={v}" for k, v in params.items()) + ")"
     return name
+
+
+def _supports(policy: str, model: str) -> bool:
+    from invbench.baselines.policies.registry import supports  # late: keeps loading light
+    return supports(policy, model)

@@ -112,7 +112,7 @@ def function(v: Any, where: str) -> str:
 
 def classical(policy: str, params: Mapping[str, Any] | None, specs: Iterable[Any], where: str) -> None:
     """The name is a registered policy; given parameters build a policy on every instance."""
-    from invbench.baselines.policies.registry import make_policy, policy_names  # late: keeps loading light
+    from invbench.baselines.policies.registry import make_policy, policy_names, supports  # late: keeps loading light
 
     names = list(policy_names())
     if policy not in names:
@@ -123,6 +123,8 @@ def classical(policy: str, params: Mapping[str, Any] | None, specs: Iterable[Any
         if key(k) != k:  # not a plain word: no parameter is called that
             raise SpecError(f"{where}.params.{key(k)}: unknown parameter for {policy}")
     for spec in specs:
+        if not supports(policy, spec.model):
+            continue  # never paired with this instance (see Suite.cells)
         try:
             make_policy(spec, policy, params)
         except (SpecError, BudgetError) as e:

@@ -103,6 +103,8 @@ class InventoryModel:
     shortfall: str = "lost"
     #: a negative first state coordinate is possible (net inventory)
     signed_level: bool = False
+    #: the state is [stock level, orders arriving in 1 .. L-1 periods] (`pipeline.py`)
+    stock_then_pipeline: bool = False
     #: flows that take units out of the inventory position (conservation of units)
     departing: tuple[str, ...] = ("sales",)
     #: a tiny instance (spec dict without "model") for the conformance test and examples

@@ -28,6 +28,7 @@ class BackorderModel(InventoryModel):
         "later deliveries; the state's first entry is the net inventory (on-hand minus backorders, "
         "negative when backorders wait). Each unit backordered at the end of a period costs "
         "`shortage_cost`; end-of-period on-hand stock costs `holding_cost` per unit.")
+    stock_then_pipeline = True
     shortfall = "backordered"
     signed_level = True
     departing = ()  # the position falls by the whole demand, met now or later

@@ -29,6 +29,7 @@ class LostSalesModel(InventoryModel):
         "later before that period's demand (L = 0: at once). Demand is met from stock; what cannot "
         "be met is lost at `shortage_cost` per unit. End-of-period stock costs `holding_cost` per "
         "unit; an order costs `unit_order_cost` per unit plus `fixed_order_cost` when positive.")
+    stock_then_pipeline = True
     shortfall = "lost"
     example = {"lead_time": 2, "holding_cost": 1.0, "shortage_cost": 9.0,
                "demand": {"distribution": "poisson", "mean": 2.0}}
