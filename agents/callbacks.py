@@ -25,7 +25,7 @@ from tqdm.auto import tqdm
 
 from invbench.envs.spec import InstanceSpec
 
-from .crn_eval import crn_cost
+from invbench.experiments.simulate import simulate
 from .export import _atomic_write
 from .settings import AUTO, CommonSettings
 
@@ -90,7 +90,7 @@ class TrainingMonitor:
 
     def record(self, step: int, policy: Any) -> dict[str, Any]:
         s = self.settings
-        est = crn_cost(self.spec, policy.act, replications=s.eval_replications, periods=s.eval_periods,
+        est = simulate(self.spec, policy.act, replications=s.eval_replications, periods=s.eval_periods,
                        warmup=s.eval_warmup, seed=s.eval_seed)
         gap = 100.0 * (est.cost - self.optimum) / self.optimum if self.optimum else None
         exact = self._exact(policy)

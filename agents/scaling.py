@@ -16,7 +16,7 @@ import numpy as np
 from invbench.envs.errors import SpecError
 from invbench.envs.spec import InstanceSpec
 
-from .crn_eval import crn_cost
+from invbench.experiments.simulate import simulate
 from .settings import AUTO, CommonSettings
 
 
@@ -131,7 +131,7 @@ def reference_cost(spec: InstanceSpec, max_units: int, seed: int = 0) -> float:
         want = np.clip(level - state.sum(axis=1), 0, max_units)
         return (want // q) * q
 
-    est = crn_cost(spec, act, replications=16, periods=400, warmup=50, seed=seed)
+    est = simulate(spec, act, replications=16, periods=400, warmup=50, seed=seed)
     return max(est.cost, 1e-6)
 
 

@@ -43,7 +43,7 @@ class CommonSettings:
     order_quantile: float = setting(0.9999, "float", "demand quantile giving the automatic order bound", 0.5, 1.0, True)
     episode_length: int = setting(500, "int", "periods per training episode", 1, 10**7)
     eval_every: Any = setting(AUTO, "int", "training steps between learning-curve points (auto: 20 points)", 1, None, auto=True)
-    eval_replications: int = setting(32, "int", "replications of each learning-curve evaluation", 1, 10**6)
+    eval_replications: int = setting(32, "int", "replications of each learning-curve evaluation", 2, 10**6)
     eval_periods: int = setting(1000, "int", "measured periods per replication", 1, 10**7)
     eval_warmup: int = setting(100, "int", "periods discarded before measuring", 0, 10**7)
     eval_seed: int = setting(20_240_601, "int", "seed of the common random numbers of the learning curve", 0, 2**63 - 1)

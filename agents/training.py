@@ -64,7 +64,7 @@ def resolve_settings(agent: str, settings: Any) -> CommonSettings:
     if settings is not None and not isinstance(settings, Mapping):
         raise SpecError("settings: must be a mapping of agent settings or a settings object")
     if agent == "rollout":
-        from .rollout_api import RolloutSettings
+        from .rollout_agent import RolloutSettings
         from .settings import apply_overrides
         return apply_overrides(RolloutSettings(), settings, agent)
     return sb3_settings(agent, settings)
@@ -127,7 +127,7 @@ def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, ou
     monitor = TrainingMonitor(spec, s, steps, out_dir, optimum=opt, max_cpu_seconds=max_cpu_seconds)
     try:
         if agent == "rollout":
-            from .rollout_api import run_rollout_agent
+            from .rollout_agent import run_rollout_agent
             final, done = run_rollout_agent(spec, s, scaling, steps, seed, monitor)
         else:
             final, done = _run_sb3(agent, spec, s, scaling, steps, seed, monitor)
@@ -139,7 +139,7 @@ def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, ou
     if select_best and monitor.best is not None and monitor.best[1] is not final:
         chosen, policy = "best", monitor.best[1]
     wall, cpu = time.perf_counter() - t0, time.process_time() - c0
-    from .lead_api import measure
+    from .measurement import measure
     measured = measure(spec, policy, opt)
     training = {"agent": agent, "steps": steps, "steps_done": done, "seed": seed, "settings": to_jsonable(s),
                 "wall_seconds": wall, "cpu_seconds": cpu, "torch_threads": int(s.threads), "chosen": chosen}
@@ -159,7 +159,7 @@ def _optimum(spec: InstanceSpec, optimum: Any, progress: bool) -> float | None:
     if isinstance(optimum, str):
         if optimum != AUTO:
             raise SpecError(f"optimum: must be 'auto', None, a number or a solve result, got {optimum!r}")
-        from .lead_api import solve_optimum
+        from .measurement import solve_optimum
         res = solve_optimum(spec, progress=progress)
         return None if res is None else float(res.cost)
     v = getattr(optimum, "cost", optimum)

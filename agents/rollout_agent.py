@@ -89,13 +89,13 @@ def order_up_to(level: int, spec: InstanceSpec, max_units: int) -> Any:
 
 def best_order_up_to(spec: InstanceSpec, max_units: int, seed: int) -> tuple[int, Any]:
     """The order-up-to level with the lowest CRN cost, by a scan around the critical fractile."""
-    from .crn_eval import crn_cost
+    from invbench.experiments.simulate import simulate
     from .scaling import demand_quantile
     ratio = spec.shortage_cost / max(spec.shortage_cost + spec.holding_cost, 1e-12)
     centre = demand_quantile(spec, min(max(ratio, 0.5), 0.9999), spec.lead_time + 1)
     best = None
     for level in range(max(centre - 12, 0), centre + 4):
-        c = crn_cost(spec, order_up_to(level, spec, max_units), replications=32, periods=600, warmup=100, seed=seed).cost
+        c = simulate(spec, order_up_to(level, spec, max_units), replications=32, periods=600, warmup=100, seed=seed).cost
         if best is None or c < best[0]:
             best = (c, level)
     return best[1], order_up_to(best[1], spec, max_units)
