@@ -37,15 +37,15 @@ class ExactEvaluation:
     states: int
     seconds: float
     criterion: str
-    truncation_mass: float
+    truncation_mass: float  # demand tail probability dropped from the pmf (as in SolveResult)
     method: str = "exact"
     index: StateIndex | None = field(default=None, repr=False)
     P: sp.csr_matrix | None = field(default=None, repr=False)
     state_costs: np.ndarray | None = field(default=None, repr=False)  # [S, parts] by named part
     orders: np.ndarray | None = field(default=None, repr=False)
     start: int = 0
-    truncated_mass: float = 0.0  # long-run share of periods where the far-stock truncation acted
-    truncated_at: int | None = None
+    far_stock_share: float = 0.0  # long-run share of periods where the far-stock truncation acted
+    far_stock_level: int | None = None
     clipped_orders: int = 0  # orders moved to a legal size (only when asked to clip)
     _pi: np.ndarray | None = field(default=None, repr=False)
 
@@ -74,8 +74,8 @@ class ExactEvaluation:
     def to_dict(self) -> dict[str, Any]:
         return {"cost": self.cost, "lower": self.lower, "upper": self.upper, **self.parts,
                 "states": self.states, "seconds": self.seconds, "criterion": self.criterion,
-                "demand_tail_dropped": self.truncation_mass, "far_stock_share": self.truncated_mass,
-                "truncated_at": self.truncated_at, "clipped_orders": self.clipped_orders,
+                "truncation_mass": self.truncation_mass, "far_stock_share": self.far_stock_share,
+                "far_stock_level": self.far_stock_level, "clipped_orders": self.clipped_orders,
                 "method": self.method}
 
 
@@ -224,14 +224,14 @@ def _discounted(P: sp.csr_matrix, costs: np.ndarray, n_parts: int, start: int, b
 
 def evaluate_exact(spec: Any, policy: Any, *, start: np.ndarray | None = None, rel_tol: float = 1e-9,
                    max_states: int = DEFAULT_MAX_STATES, max_iter: int = 200_000,
-                   max_truncated_mass: float = 1e-9, clip: bool = False) -> ExactEvaluation:
+                   max_far_stock_share: float = 1e-9, clip: bool = False) -> ExactEvaluation:
     """Exact long-run average (or discounted, from the start state) cost of `policy` on `spec`.
 
     A policy that can drift to very high stock (or backlog) with positive probability — a
     constant order lets stock creep up through runs of low demand — has an infinite reachable
     set. It is then evaluated on a chain truncated at a far stock level (`explore`), and the
     result is accepted only if the long-run probability that the truncation acts is at most
-    `max_truncated_mass`; it is reported as `truncated_mass`. Orders that are not legal sizes
+    `max_far_stock_share`; it is reported as `far_stock_share`. Orders that are not legal sizes
     are refused unless clip=True (then counted in `clipped_orders`).
     Raises BudgetError when the reachable state space is too large or the policy unstable.
     """
@@ -261,12 +261,12 @@ def evaluate_exact(spec: Any, policy: Any, *, start: np.ndarray | None = None, r
     if truncate_at is not None:
         t = float(max(hi[k + 1], 0.0))
         truncated = t if crit == "average" else t * (1 - spec.discount)
-        if truncated > max_truncated_mass:
+        if truncated > max_far_stock_share:
             raise BudgetError(f"exact evaluation: the policy spends a long-run share {truncated:.1e} of periods "
                               f"beyond stock +-{truncate_at:,} (unstable, or far too much stock) — use simulation")
     parts = {name: float(mid[1 + j]) for j, name in enumerate(ch.cost_names)}
     return ExactEvaluation(float(mid[0]), float(lo[0]), float(hi[0]), parts, len(ch.index),
                            time.perf_counter() - t0, crit, spec.demand.pmf().truncation_mass,
                            index=ch.index, P=ch.P, state_costs=ch.costs[:, :k], orders=ch.orders,
-                           start=ch.start, truncated_mass=truncated, truncated_at=truncate_at,
+                           start=ch.start, far_stock_share=truncated, far_stock_level=truncate_at,
                            clipped_orders=ch.clipped)

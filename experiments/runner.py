@@ -276,6 +276,9 @@ def learning_curve(trained: Any, out_dir: Path) -> list[dict[str, float]] | None
 
 
 def _curve_rows(df: Any) -> list[dict[str, float]]:
+    """(step, cost, gap) rows; `gap` is a fraction in results (training logs keep `gap_pct`)."""
+    if "gap" not in df.columns and "gap_pct" in df.columns:
+        df = df.assign(gap=df["gap_pct"] / 100.0)
     cols = [c for c in ("step", "cost", "gap") if c in df.columns]
     return [{c: _num(r[c]) for c in cols} for _, r in df[cols].iterrows()]
 

@@ -62,6 +62,6 @@ def test_constant_order_below_mean_is_evaluated_exactly_on_a_truncated_chain():
     spec = lost_sales(2, 9.0, mean=4.0)
     pol = lambda obs: np.full(len(obs), 3)  # noqa: E731
     ex = evaluate_exact(spec, pol)
-    assert ex.truncated_at is not None and ex.truncated_mass <= 1e-9
+    assert ex.far_stock_level is not None and ex.far_stock_share <= 1e-9
     sim = simulate(spec, pol, replications=40, periods=5000, seed=2)
     assert abs(ex.cost - sim.cost) <= 3 * sim.ci_halfwidth
