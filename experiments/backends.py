@@ -1,6 +1,6 @@
 """Where cells run: in this process, in a local process pool (default), or as Ray tasks.
 
-Every backend calls the same `runner.run_cell` on the same plain payloads and yields the
+Every backend calls the same `cell.run_cell` on the same plain payloads and yields the
 records as they finish, so results do not depend on the backend, only on the cells' seeds.
 The driver (this process) writes each record; workers never touch the results folder.
 """
@@ -17,7 +17,7 @@ from typing import Any, Iterable, Iterator
 
 from invbench.envs.errors import SpecError
 
-from .runner import run_cell
+from .cell import run_cell
 
 BACKENDS = ("local", "ray")
 

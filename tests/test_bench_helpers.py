@@ -69,7 +69,7 @@ def search_base_stock(spec: InstanceSpec, params: dict[str, Any], seed: int, eva
     Its learning curve (best cost so far vs periods simulated) and its policy map give the
     report something real to draw without training a network.
     """
-    from invbench.experiments.runner import policy_map
+    from invbench.experiments.cell import policy_map
 
     reps, periods = 20, 300
     mean, sd = spec.demand.mean, math.sqrt(spec.demand.var)
