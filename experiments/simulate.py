@@ -48,6 +48,13 @@ def _check_int(name: str, v: Any, lo: int) -> int:
     return int(v)
 
 
+def _columns(parts: Any) -> np.ndarray:
+    """holding, shortage, ordering and every other cost part of the model (e.g. outdating),
+    so the total is the model's whole period cost."""
+    named = parts.holding + parts.shortage + parts.ordering
+    return np.column_stack([parts.holding, parts.shortage, parts.ordering, parts.total - named])
+
+
 def demand_stream(spec: Any, rng: np.random.Generator, replications: int) -> np.ndarray:
     """One period of demands for all replications (the common-random-numbers draw)."""
     return spec.demand.from_uniforms(rng.random(replications))
@@ -70,7 +77,7 @@ def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 
     rng = np.random.default_rng(seed)
     state = initial_state(spec, R) if start is None else np.repeat(np.asarray(start, np.int64).reshape(1, -1), R, 0)
     discounted = spec.discount < 1
-    acc = np.zeros((R, 3))
+    acc = np.zeros((R, 4))
     weight = 1.0
     t0 = time.perf_counter()
     steps = range(T if discounted else W + T)
@@ -82,10 +89,10 @@ def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 
         demand = demand_stream(spec, rng, R)
         state, parts = step(state, orders, demand)
         if discounted:
-            acc += weight * np.column_stack([parts.holding, parts.shortage, parts.ordering])
+            acc += weight * _columns(parts)
             weight *= spec.discount
         elif t >= W:
-            acc += np.column_stack([parts.holding, parts.shortage, parts.ordering])
+            acc += _columns(parts)
     per_rep = acc if discounted else acc / T
     total = per_rep.sum(axis=1)
     half = float(stats.t.ppf(0.975, R - 1) * total.std(ddof=1) / np.sqrt(R))
