@@ -20,7 +20,7 @@ inventory control; from memory), and these points are our interpretation:
   base-stock S only when EW = 0, i.e. for L = 0. For L >= 1 it does not nest base-stock.
 
 Parameters: integers S1, S2 >= 0 and b >= 0; found by a local search with exact evaluation
-from the best base-stock level (and, for L >= 1, the best BSP-EW level).
+from the best single level S1 = S2 (see `optimize`).
 """
 from __future__ import annotations
 
@@ -31,7 +31,7 @@ import numpy as np
 from invbench.baselines.policy import legal_orders
 from invbench.envs.spec import InstanceSpec
 
-from ._common import ClassicalPolicy, as_states, check_names, int_param, inventory_position
+from ._common import ClassicalPolicy, as_states, check_names, fractile, int_param, inventory_position
 from ._projection import StateCache, project_states
 
 #: Guards the rounding of S - y against float noise in EW.
@@ -82,15 +82,14 @@ class BSPLowEWPolicy(ClassicalPolicy):
     @classmethod
     def optimize(cls, spec: InstanceSpec, progress: bool = False,
                  max_states: int | None = None) -> "BSPLowEWPolicy":
-        """Best (S1, S2, b): a pattern search with exact evaluation on (S1, S2, b), started at
-        S1 = S2 = the best BSP-EW level (a 1-D search from the best base-stock level; the
-        same policy when L = 0) with b there too. b is kept in [0, max(S1, S2) + 1]: larger
-        values all mean "always S1". A local search: the result is the best triple evaluated,
-        not a certified optimum over all triples."""
+        """Best (S1, S2, b) by exact evaluation: first S1 = S2 = S (BSP-EW; plain base-stock
+        when L = 0) by a line search on S from the newsvendor level of demand over L + 1
+        periods, with a unit held charged its holding cost plus 1/m of the outdating cost (as
+        the model's exact space does; common practice); then a pattern search on the triple
+        from (S, S, S). b stays in [0, max(S1, S2) + 1]: larger values all mean "always S1".
+        A local search: the result is the best triple evaluated, not a certified optimum."""
         from ._search import ExactScorer, pattern_search
-        from .base_stock import BaseStockPolicy
 
-        base = BaseStockPolicy.optimize(spec, progress=progress, max_states=max_states)
         cache = StateCache()  # EW does not depend on the parameters: share it
 
         def build(x: tuple[int, ...]) -> "BSPLowEWPolicy":
@@ -102,20 +101,20 @@ class BSPLowEWPolicy(ClassicalPolicy):
             s1, s2 = max(x[0], 0), max(x[1], 0)
             return s1, s2, min(max(x[2], 0), max(s1, s2) + 1)
 
+        h = spec.holding_cost + spec.outdating_cost / spec.shelf_life
+        p = spec.shortage_cost
+        start = fractile(spec.demand.lead_time_pmf(spec.lead_time + 1).cdf(), p / (p + h) if p + h > 0 else 0.5)
         scorer = ExactScorer(spec, build, progress=progress, desc="bsp_low_ew", max_states=max_states)
         try:
-            S = base.S
-            if spec.lead_time == 0 and base.optimum is not None:
-                scorer.seed((S, S, S), base.optimum)  # EW = 0: the very same policy
-            (S,), _ = pattern_search(lambda x: scorer((x[0],) * 3), (S,), (1,), lambda x: (max(x[0], 0),))
+            (S,), single = pattern_search(lambda x: scorer((x[0],) * 3), (start,), (1,),
+                                          lambda x: (max(x[0], 0),), patience=1)
             step = max(1, S // 4)
             pattern_search(scorer, (S, S, S), (step, step, step), clamp)
             point = scorer.best_point()
             pol = cls(spec, *point)
-            base_cost = base.optimum.cost if base.optimum else None
-            pol.optimum = scorer.optimum(point, note="local search on (S1, S2, b) from the best "
-                                         "base-stock level", base_stock={"S": base.S, "cost": base_cost})
-            pol.optimum.evaluations += base.optimum.evaluations if base.optimum else 0
+            level = "base_stock" if spec.lead_time == 0 else "bsp_ew"
+            pol.optimum = scorer.optimum(point, note="local search on (S1, S2, b) from the best single "
+                                         "level", **{level: {"S": S, "cost": single}})
         finally:
             scorer.close()
         return pol
