@@ -13,7 +13,7 @@ def _fmt_params(params: dict) -> str:
 
 def run_demo(progress: bool = False) -> int:
     from invbench.api import evaluate, load_spec, solve
-    from invbench.baselines.policies.registry import make_policy, policy_names
+    from invbench.baselines.policies.registry import make_policy, policies_for
 
     t0 = time.perf_counter()
     for raw in DEMO_INSTANCES:
@@ -26,7 +26,7 @@ def run_demo(progress: bool = False) -> int:
         print(f"   exact optimum {opt.cost:.4f} per period, certified to [{opt.lower:.4f}, {opt.upper:.4f}], "
               f"{opt.states:,} states, {opt.seconds:.1f} s")
         rows = [("optimal", "table", opt.cost, "exact", 0.0)]
-        names = policy_names()
+        names = policies_for(spec.model)
         it = names
         if progress:
             from tqdm import tqdm

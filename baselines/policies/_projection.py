@@ -1,9 +1,11 @@
-"""Distribution of the stock level at the moment a new order arrives, from the current state.
+"""Distribution of the stock at the moment a new order arrives, from the current state.
 
 The state is stepped L times through the model's own step function with no new orders, so
-only the pipeline already placed comes in; after L steps the first coordinate is the on-hand
-(lost sales) or net inventory (backorders) just before this period's order would be added.
-Used by the PIL and myopic policies; both cache results per distinct state.
+only the pipeline already placed comes in. `project_levels` keeps the first coordinate (the
+on-hand under lost sales, the net inventory under backorders) just before this period's order
+would be added; `project_states` keeps the whole state (perishable stock by age) and the
+expected flows of those L periods (e.g. units outdated). Used by the PIL, myopic and
+BSP-low-EW policies; all cache results per distinct state.
 """
 from __future__ import annotations
 
@@ -54,6 +56,73 @@ def _project_block(step, states, dvals, dprob, lead_time: int, offset: int):
     return owner + offset, rows[:, 0].copy(), prob
 
 
+def project_states(spec: InstanceSpec, states: np.ndarray, flows: tuple[str, ...] = ()
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, dict[str, np.ndarray]]:
+    """(owner, rows, prob, expected): for each input state `owner`, the distribution of the
+    whole state at the start of the period in which an order placed now arrives (rows [R, n],
+    that order itself not yet added), and, per input state, the expected total of each flow in
+    `flows` over the L periods before it (the step function's outcome flows, e.g. "outdated").
+    Rows of one owner are contiguous; with L = 0 the rows are the states and the totals zero."""
+    states = np.asarray(states, dtype=np.int64)
+    expected = {f: np.zeros(len(states)) for f in flows}
+    if spec.lead_time == 0 or len(states) == 0:
+        return np.arange(len(states)), states.copy(), np.ones(len(states)), expected
+    step = step_fn(spec)
+    pmf = spec.demand.pmf().normalized()
+    dvals = np.flatnonzero(pmf > 0)
+    dprob = pmf[dvals]
+    chunk = max(1, _ROWS // max(len(dvals) ** min(spec.lead_time, 3), 1))
+    parts = []
+    for i in range(0, len(states), chunk):
+        owner, rows, prob, exp_i = _project_state_block(step, states[i:i + chunk], dvals, dprob,
+                                                        spec.lead_time, flows)
+        parts.append((owner + i, rows, prob))
+        for f in flows:
+            expected[f][i:i + chunk] = exp_i[f]
+    owner, rows, prob = (np.concatenate(p) for p in zip(*parts))
+    return owner, rows, prob, expected
+
+
+def _project_state_block(step, states, dvals, dprob, lead_time: int, flows: tuple[str, ...]):
+    owner = np.arange(len(states))
+    rows, prob = states, np.ones(len(states))
+    expected = {f: np.zeros(len(states)) for f in flows}
+    k = len(dvals)
+    for _ in range(lead_time):
+        rep = np.repeat(np.arange(len(rows)), k)
+        nxt, out = step(rows[rep], np.zeros(len(rep), dtype=np.int64), np.tile(dvals, len(rows)))
+        w = prob[rep] * np.tile(dprob, len(rows))
+        own = owner[rep]
+        for f in flows:
+            expected[f] += np.bincount(own, weights=w * out.flows[f], minlength=len(states))
+        # Equal (owner, state) rows are one row: merge them so the count stays that of the
+        # distinct reachable states rather than growing as |demand values|^L.
+        keyed = np.column_stack([own, nxt])
+        keys = _row_keys(keyed)
+        if keys is None:
+            _, first, inv = np.unique(keyed, axis=0, return_index=True, return_inverse=True)
+        else:
+            _, first, inv = np.unique(keys, return_index=True, return_inverse=True)
+        prob = np.bincount(inv.reshape(-1), weights=w, minlength=len(first))
+        owner, rows = own[first], nxt[first]
+    return owner, rows, prob, expected
+
+
+def _row_keys(rows: np.ndarray) -> np.ndarray | None:
+    """One int64 per row of a non-negative integer array, ordered like the rows
+    lexicographically (None when the mixed-radix number would overflow): sorting one column
+    is far quicker than np.unique(axis=0)."""
+    if len(rows) == 0 or rows.min() < 0:
+        return None
+    radix = rows.max(axis=0).astype(np.int64) + 1
+    if float(np.prod(radix.astype(float))) >= 2.0 ** 62:
+        return None
+    keys = np.zeros(len(rows), dtype=np.int64)
+    for j in range(rows.shape[1]):
+        keys = keys * radix[j] + rows[:, j]
+    return keys
+
+
 class StateCache:
     """Per-state values computed in batches for the distinct states not seen before."""
 
@@ -62,7 +131,12 @@ class StateCache:
         self.limit = limit
 
     def get(self, states: np.ndarray, compute) -> np.ndarray:
-        uniq, inv = np.unique(states, axis=0, return_inverse=True)
+        keys_int = _row_keys(states)
+        if keys_int is None:
+            uniq, inv = np.unique(states, axis=0, return_inverse=True)
+        else:
+            _, first, inv = np.unique(keys_int, return_index=True, return_inverse=True)
+            uniq = states[first]
         inv = inv.reshape(-1)
         keys = [row.tobytes() for row in uniq]
         missing = [i for i, key in enumerate(keys) if key not in self.store]

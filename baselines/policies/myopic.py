@@ -8,6 +8,15 @@ shortage are those of one period of demand on X + q. The ordering cost is the sp
 unit_order_cost x q + fixed_order_cost x [q > 0], as the step function charges it. Later periods
 are ignored; ties go to the smaller order. Under backorders this is min_q G(position + q) +
 ordering cost, i.e. base-stock at the minimiser of G when ordering is free. No parameters.
+
+Perishable goods: the same criterion on the whole state. The state at the start of period
+t + L (stock by remaining life, the pipeline already placed come in, no other orders) is
+projected by the step function (`_projection.project_states`); the order of q units is added
+where the step function puts an arriving order (found by stepping the empty state with one
+unit ordered and no demand), and the period is stepped once over the demand pmf. Minimised:
+E[holding + shortage + outdating of period t + L] + ordering cost of q. The outdating counted
+is that of the arrival period only: units of the new order that would perish in later periods
+are not charged, which is what makes the rule myopic.
 """
 from __future__ import annotations
 
@@ -19,7 +28,7 @@ from invbench.envs.dynamics import step_fn
 from invbench.envs.spec import InstanceSpec
 
 from ._common import ClassicalPolicy, as_states, check_names
-from ._projection import StateCache, project_levels
+from ._projection import StateCache, project_levels, project_states
 
 #: Cost-table cells (projected rows x order sizes) handled at once.
 _CELLS = 4_000_000
@@ -50,11 +59,63 @@ class _PeriodCost:
         return self.lo, self.vals
 
 
+class _ArrivalCost:
+    """For states of any layout: E[period cost except ordering] of the period in which an order
+    of each legal size arrives, from the projected states of that period (cached per row)."""
+
+    def __init__(self, spec: InstanceSpec) -> None:
+        self.spec = spec
+        self.step = step_fn(spec)
+        self.sizes = spec.order_sizes_units
+        pmf = spec.demand.pmf().normalized()
+        self.d = np.flatnonzero(pmf > 0)
+        self.p = pmf[self.d]
+        self.slot = self._arrival_slot() if spec.lead_time > 0 else None
+        self.cache = StateCache()
+
+    def _arrival_slot(self) -> np.ndarray:
+        """Where one unit ordered now sits when it arrives (a unit state vector)."""
+        state = np.zeros((1, self.spec.state_dim), dtype=np.int64)
+        zero = np.zeros(1, dtype=np.int64)
+        for t in range(self.spec.lead_time):
+            state, _ = self.step(state, zero + (1 if t == 0 else 0), zero)
+        if state.sum() != 1 or state.min() < 0:
+            raise ValueError(f"myopic: cannot locate an arriving order in the {self.spec.model} state")
+        return state[0]
+
+    def _table(self, rows: np.ndarray) -> np.ndarray:
+        """[K, sizes] for arrival-period rows (the order itself not yet added)."""
+        k_q, k_d = len(self.sizes), len(self.d)
+        out = np.empty((len(rows), k_q))
+        chunk = max(1, _CELLS // (k_q * k_d))
+        for i in range(0, len(rows), chunk):
+            blk = rows[i:i + chunk]
+            n = len(blk)
+            if self.slot is None:  # L = 0: the order is the step's own action, arriving at once
+                st = np.repeat(blk, k_q * k_d, axis=0)
+                act = np.tile(np.repeat(self.sizes, k_d), n)
+            else:
+                with_q = blk[:, None, :] + self.sizes[None, :, None] * self.slot[None, None, :]
+                st = np.repeat(with_q.reshape(n * k_q, -1), k_d, axis=0)
+                act = np.zeros(len(st), dtype=np.int64)
+            _, parts = self.step(st, act, np.tile(self.d, n * k_q))
+            cost = (parts.total - parts.ordering).reshape(n, k_q, k_d)
+            out[i:i + chunk] = cost @ self.p
+        return out
+
+    def expected(self, states: np.ndarray) -> np.ndarray:
+        owner, rows, prob, _ = project_states(self.spec, states)
+        table = self.cache.get(rows, self._table)
+        out = np.zeros((len(states), len(self.sizes)))
+        np.add.at(out, owner, table * prob[:, None])
+        return out
+
+
 class MyopicPolicy(ClassicalPolicy):
     """One-period-ahead cost minimiser (see the module docstring for the exact criterion)."""
 
     name = "myopic"
-    models = ("lost_sales", "backorder")
+    models = ("lost_sales", "backorder", "perishable")
 
     def __init__(self, spec: InstanceSpec) -> None:
         self.spec = spec
@@ -63,7 +124,13 @@ class MyopicPolicy(ClassicalPolicy):
         _, parts = step_fn(spec)(np.zeros((len(self._sizes), spec.state_dim), dtype=np.int64),
                                  self._sizes, np.zeros(len(self._sizes), dtype=np.int64))
         self._order_cost = parts.ordering
-        self._g = _PeriodCost(spec)
+        # Lost sales and backorders reach the arrival period with a one-number state; other
+        # models (stock by age) keep the whole state.
+        self._by_level = spec.model in ("lost_sales", "backorder")
+        if self._by_level:
+            self._g = _PeriodCost(spec)
+        else:
+            self._arrival = _ArrivalCost(spec)
         self._cache = StateCache()
 
     def params(self) -> dict[str, Any]:
@@ -71,6 +138,8 @@ class MyopicPolicy(ClassicalPolicy):
 
     def expected_costs(self, states: np.ndarray) -> np.ndarray:
         """[U, sizes]: the minimised criterion for each state and each legal order size."""
+        if not self._by_level:
+            return self._arrival.expected(np.asarray(states, dtype=np.int64)) + self._order_cost[None, :]
         owner, level, prob = project_levels(self.spec, np.asarray(states, dtype=np.int64))
         lo, g = self._g.table(int(level.min()), int(level.max()) + int(self._sizes[-1]))
         out = np.zeros((len(states), len(self._sizes)))

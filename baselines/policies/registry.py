@@ -10,6 +10,7 @@ from invbench.envs.errors import SpecError
 from invbench.envs.spec import InstanceSpec
 
 from .base_stock import BaseStockPolicy
+from .bsp_low_ew import BSPLowEWPolicy
 from .capped_base_stock import CappedBaseStockPolicy
 from .constant_order import ConstantOrderPolicy
 from .myopic import MyopicPolicy
@@ -23,6 +24,7 @@ POLICIES: dict[str, type[PolicyBase]] = {
     "capped_base_stock": CappedBaseStockPolicy,
     "pil": PILPolicy,
     "myopic": MyopicPolicy,
+    "bsp_low_ew": BSPLowEWPolicy,
 }
 
 _DESCRIPTIONS: dict[str, str] = {
@@ -32,6 +34,8 @@ _DESCRIPTIONS: dict[str, str] = {
     "capped_base_stock": "order up to S, at most r units a period (params: S, r)",
     "pil": "order so the expected stock when the order arrives reaches the target (params: target)",
     "myopic": "order minimising the expected cost of the period the order arrives in (no params)",
+    "bsp_low_ew": "perishables: order up to S1 (below b) or S2 on the position less expected waste "
+                  "(Haijema & Minner 2019; params: S1, S2, b)",
 }
 
 
