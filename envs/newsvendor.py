@@ -13,8 +13,9 @@ if TYPE_CHECKING:
 
 
 def critical_ratio(spec: "InstanceSpec", holding: float | None = None) -> float:
-    """p / (p + h); 0.5 when both costs are 0. `holding` replaces the spec's holding cost."""
-    h = spec.holding_cost if holding is None else holding
+    """p / (p + h); 0.5 when both costs are 0. h is the model's carrying cost (the holding cost,
+    plus e.g. the outdating of perishable stock) unless `holding` is given."""
+    h = spec.model_def.carrying_cost(spec) if holding is None else holding
     p = spec.shortage_cost
     return p / (p + h) if p + h > 0 else 0.5
 

@@ -14,7 +14,7 @@ import pytest
 
 from invbench.experiments.runner import run_bench
 from invbench.experiments.suite import load_suite
-from tests.test_bench_helpers import REPO_ROOT, instance, sim_policy, subprocess_env, write_suite
+from tests.test_bench_helpers import instance, sim_policy, subprocess_env, write_suite
 
 GOOD_SUITE = """[suite]
 name = "ok"

@@ -146,6 +146,11 @@ class InventoryModel:
         """One period for a batch: (next state [B, n], outcome)."""
         raise NotImplementedError
 
+    def carrying_cost(self, spec: "InstanceSpec") -> float:
+        """Cost per unit per period of stock carried, for first guesses (fractile levels, bounds):
+        the holding cost here; a model adds what else stock costs it (e.g. outdating)."""
+        return float(spec.holding_cost)
+
     def units_out(self, outcome: Outcome, demand: np.ndarray) -> np.ndarray:
         """Units that left the inventory position this period: the position moves by the
         orders placed minus this (checked on random inputs by the conformance test)."""

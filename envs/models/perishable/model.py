@@ -54,6 +54,10 @@ class PerishableModel(InventoryModel):
         if spec.shortage_cost <= 0:
             raise SpecError("instance.shortage_cost: must be > 0 (else ordering nothing is optimal)")
 
+    def carrying_cost(self, spec: "InstanceSpec") -> float:
+        """Holding plus the outdating cost spread over the shelf life (common practice)."""
+        return float(spec.holding_cost + spec.outdating_cost / spec.shelf_life)
+
     @staticmethod
     def _on_hand_slots(spec: "InstanceSpec") -> int:
         return spec.shelf_life - 1 if spec.lead_time == 0 else spec.shelf_life
@@ -109,6 +113,6 @@ class PerishableSpace(ExactSpace):
         critical-fractile level of lead-time demand, with a unit carried charged its holding
         cost plus its share of the outdating cost over its life (common practice)."""
         spec = self.spec
-        h = spec.holding_cost + spec.outdating_cost / spec.shelf_life
+        h = self.model.carrying_cost(spec)
         q = spec.case_pack
         return Bounds(upper=max(order_up_to_level(spec, holding=h) + eoq_room(spec, holding=max(h, 1e-9)) + q, q))
