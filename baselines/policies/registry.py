@@ -11,10 +11,14 @@ from invbench.envs.spec import InstanceSpec
 
 from .base_stock import BaseStockPolicy
 from .capped_base_stock import CappedBaseStockPolicy
+from .capped_dual_index import CappedDualIndexPolicy
 from .constant_order import ConstantOrderPolicy
+from .dual_index import DualIndexPolicy
 from .myopic import MyopicPolicy
 from .pil import PILPolicy
 from .s_s import SSPolicy
+from .single_source import SingleExpeditedPolicy, SingleRegularPolicy
+from .tailored_base_surge import TailoredBaseSurgePolicy
 
 POLICIES: dict[str, type[PolicyBase]] = {
     "base_stock": BaseStockPolicy,
@@ -23,6 +27,11 @@ POLICIES: dict[str, type[PolicyBase]] = {
     "capped_base_stock": CappedBaseStockPolicy,
     "pil": PILPolicy,
     "myopic": MyopicPolicy,
+    "single_regular": SingleRegularPolicy,
+    "single_expedited": SingleExpeditedPolicy,
+    "dual_index": DualIndexPolicy,
+    "capped_dual_index": CappedDualIndexPolicy,
+    "tailored_base_surge": TailoredBaseSurgePolicy,
 }
 
 _DESCRIPTIONS: dict[str, str] = {
@@ -32,6 +41,11 @@ _DESCRIPTIONS: dict[str, str] = {
     "capped_base_stock": "order up to S, at most r units a period (params: S, r)",
     "pil": "order so the expected stock when the order arrives reaches the target (params: target)",
     "myopic": "order minimising the expected cost of the period the order arrives in (no params)",
+    "single_regular": "dual sourcing: order up to S with the regular supplier only (params: S)",
+    "single_expedited": "dual sourcing: order up to S with the expedited supplier only (params: S)",
+    "dual_index": "dual sourcing: expedite up to S_e, then order regular up to S_r (params: S_e, S_r)",
+    "capped_dual_index": "dual sourcing: expedite up to S_e, order regular up to S_r, at most r (params: S_e, S_r, r)",
+    "tailored_base_surge": "dual sourcing: order r regular every period, expedite up to S_e (params: r, S_e)",
 }
 
 
