@@ -86,7 +86,7 @@ class DualSourcingModel(InventoryModel):
         sales = np.minimum(np.maximum(state[:, 0] + (qe if le == 0 else 0), 0), demand)
         backordered = np.maximum(-end, 0)
         # what arrives at the start of next period, and the pipelines shifted by one period
-        reg_next = np.column_stack([reg, qr]) if lr >= 1 else qr[:, None]
+        reg_next = np.column_stack([reg, qr])  # lr >= 1 always (lr > le >= 0)
         exp_next = np.column_stack([exp, qe]) if le >= 1 else np.zeros((len(state), 0), dtype=np.int64)
         received = reg_next[:, 0] + (exp_next[:, 0] if le >= 1 else 0)
         nxt = np.column_stack([end + received, reg_next[:, 1:], exp_next[:, 1:]])
