@@ -12,10 +12,14 @@ from invbench.envs.spec import InstanceSpec
 from .base_stock import BaseStockPolicy
 from .bsp_low_ew import BSPLowEWPolicy
 from .capped_base_stock import CappedBaseStockPolicy
+from .capped_dual_index import CappedDualIndexPolicy
 from .constant_order import ConstantOrderPolicy
+from .dual_index import DualIndexPolicy
 from .myopic import MyopicPolicy
 from .pil import PILPolicy
 from .s_s import SSPolicy
+from .single_source import SingleExpeditedPolicy, SingleRegularPolicy
+from .tailored_base_surge import TailoredBaseSurgePolicy
 
 POLICIES: dict[str, type[PolicyBase]] = {
     "base_stock": BaseStockPolicy,
@@ -25,6 +29,11 @@ POLICIES: dict[str, type[PolicyBase]] = {
     "pil": PILPolicy,
     "myopic": MyopicPolicy,
     "bsp_low_ew": BSPLowEWPolicy,
+    "single_regular": SingleRegularPolicy,
+    "single_expedited": SingleExpeditedPolicy,
+    "dual_index": DualIndexPolicy,
+    "capped_dual_index": CappedDualIndexPolicy,
+    "tailored_base_surge": TailoredBaseSurgePolicy,
 }
 
 _DESCRIPTIONS: dict[str, str] = {
@@ -36,6 +45,11 @@ _DESCRIPTIONS: dict[str, str] = {
     "myopic": "order minimising the expected cost of the period the order arrives in (no params)",
     "bsp_low_ew": "perishables: order up to S1 (below b) or S2 on the position less expected waste "
                   "(Haijema & Minner 2019; params: S1, S2, b)",
+    "single_regular": "dual sourcing: order up to S with the regular supplier only (params: S)",
+    "single_expedited": "dual sourcing: order up to S with the expedited supplier only (params: S)",
+    "dual_index": "dual sourcing: expedite up to S_e, then order regular up to S_r (params: S_e, S_r)",
+    "capped_dual_index": "dual sourcing: expedite up to S_e, order regular up to S_r, at most r (params: S_e, S_r, r)",
+    "tailored_base_surge": "dual sourcing: order r regular every period, expedite up to S_e (params: r, S_e)",
 }
 
 

@@ -9,10 +9,12 @@ from invbench.envs.errors import SpecError
 
 from .backorder import MODEL as _BACKORDER
 from .base import Field, InventoryModel, OrderSlot, Outcome
+from .dual_sourcing import MODEL as _DUAL_SOURCING
 from .lost_sales import MODEL as _LOST_SALES
 from .perishable import MODEL as _PERISHABLE
 
-MODELS: dict[str, InventoryModel] = {m.name: m for m in (_LOST_SALES, _BACKORDER, _PERISHABLE)}
+MODELS: dict[str, InventoryModel] = {m.name: m for m in (_LOST_SALES, _BACKORDER, _PERISHABLE,
+                                                        _DUAL_SOURCING)}
 
 
 def _union(lists: list[tuple[str, ...]]) -> tuple[str, ...]:
