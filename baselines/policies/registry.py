@@ -12,6 +12,7 @@ from invbench.envs.spec import InstanceSpec
 from .base_stock import BaseStockPolicy
 from .capped_base_stock import CappedBaseStockPolicy
 from .constant_order import ConstantOrderPolicy
+from .echelon import EchelonBaseStockPolicy, InstallationBaseStockPolicy, ShangSongPolicy
 from .myopic import MyopicPolicy
 from .pil import PILPolicy
 from .s_s import SSPolicy
@@ -23,6 +24,9 @@ POLICIES: dict[str, type[PolicyBase]] = {
     "capped_base_stock": CappedBaseStockPolicy,
     "pil": PILPolicy,
     "myopic": MyopicPolicy,
+    "echelon_base_stock": EchelonBaseStockPolicy,
+    "shang_song": ShangSongPolicy,
+    "installation_base_stock": InstallationBaseStockPolicy,
 }
 
 _DESCRIPTIONS: dict[str, str] = {
@@ -32,6 +36,10 @@ _DESCRIPTIONS: dict[str, str] = {
     "capped_base_stock": "order up to S, at most r units a period (params: S, r)",
     "pil": "order so the expected stock when the order arrives reaches the target (params: target)",
     "myopic": "order minimising the expected cost of the period the order arrives in (no params)",
+    "echelon_base_stock": "serial chain: stage j orders up to s[j] on its echelon position (params: s, a list)",
+    "shang_song": "serial chain: echelon base-stock at the Shang-Song newsvendor-bound levels (no params)",
+    "installation_base_stock": "serial chain: stage j orders up to r[j] on its own stock, transit and "
+                               "the order from below (params: r, a list)",
 }
 
 

@@ -11,8 +11,9 @@ from .backorder import MODEL as _BACKORDER
 from .base import Field, InventoryModel, OrderSlot, Outcome
 from .lost_sales import MODEL as _LOST_SALES
 from .perishable import MODEL as _PERISHABLE
+from .serial import MODEL as _SERIAL
 
-MODELS: dict[str, InventoryModel] = {m.name: m for m in (_LOST_SALES, _BACKORDER, _PERISHABLE)}
+MODELS: dict[str, InventoryModel] = {m.name: m for m in (_LOST_SALES, _BACKORDER, _PERISHABLE, _SERIAL)}
 
 
 def _union(lists: list[tuple[str, ...]]) -> tuple[str, ...]:
