@@ -133,21 +133,33 @@ def echelon_cost(spec: Any, levels: Sequence[int]) -> EchelonCost:
     return _result(spec, chosen, cost, bo)
 
 
+def effective_levels(levels: Sequence[int]) -> list[int]:
+    """Levels that act the same: stage j's echelon position never exceeds what the chain above
+    lets through, which is at most min(s_j+1, .., s_N); so s_j above that is lowered to it."""
+    out = [int(s) for s in levels]
+    for j in range(len(out) - 2, -1, -1):
+        out[j] = min(out[j], out[j + 1])
+    return out
+
+
 def optimal_levels(spec: Any) -> EchelonCost:
-    """The optimal echelon base-stock levels and the optimal long-run average cost."""
+    """The optimal echelon base-stock levels (as `effective_levels`, so rising upstream) and
+    the optimal long-run average cost."""
     spec = load_spec(spec)
     _check(spec)
     chosen, cost, bo = _recursion(spec, None, _grid_top(spec))
-    return _result(spec, chosen, cost, bo)
+    return _result(spec, effective_levels(chosen), cost, bo)
 
 
 def largest_orders(spec: InstanceSpec, levels: Sequence[int]) -> list[int]:
-    """Largest order each stage can place under the echelon base-stock levels once the chain
-    has filled up: the last demand plus what the stage above could not ship (at most the gap
-    between the level and the lowest echelon position the chain above lets the stage reach)."""
+    """Largest shipment each stage can receive under the echelon base-stock levels once the
+    chain has filled up: the last demand plus what the stage above could not ship before (at
+    most the gap between the effective level and the lowest echelon position the chain above
+    lets the stage reach). An order cap at least this large never changes a shipment."""
     dmax = len(one_period_pmf(spec)) - 1
     L = spec.lead_times
     N = len(L)
+    levels = effective_levels(levels)
     low = [0] * N
     low[N - 1] = levels[N - 1]
     for j in range(N - 2, -1, -1):
