@@ -112,7 +112,7 @@ def _evaluate(args: argparse.Namespace) -> int:
     print(f"policy: {ev.policy}")
     ci = "exact, no noise" if ev.method == "exact" else f"+- {ev.ci_halfwidth:.4f} (95% CI)"
     print(f"cost per period: {ev.cost:.6f}  {ci}")
-    print(f"  holding {ev.holding:.4f}  shortage {ev.shortage:.4f}  ordering {ev.ordering:.4f}")
+    print("  " + "  ".join(f"{k} {v:.4f}" for k, v in ev.parts.items()))  # the model's own cost parts
     if ev.gap is not None:
         print(f"gap to optimum ({ev.optimum:.6f}): {100 * ev.gap:.3f} %")
     if ev.note:
