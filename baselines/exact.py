@@ -123,6 +123,9 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     position (for checking that reduction; far larger).
     fast: use the model's structured build where it has one (same numbers, much quicker);
     False uses the straightforward build, stepping every (state, order, demand).
+    A model whose exact space offers `certified_solve` (an exact method of its own, e.g. the
+    serial chain's decomposition) is solved by it when method is "auto", no bounds are given
+    and fast is True; any other choice builds and solves the MDP.
     """
     spec = load_spec(spec)
     check_choice("method", method, METHODS)
@@ -141,6 +144,11 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
             "(use simulation, or a smaller case pack)")
     t0 = time.perf_counter()
     space = exact_space(spec, full_pipeline)
+    # A model whose exact space has a certified method of its own (the serial chain's Clark-Scarf
+    # decomposition) is solved by it unless the caller asked for the MDP (a method or bounds).
+    own = getattr(space, "certified_solve", None)
+    if own is not None and method == "auto" and bounds is None and fast:
+        return own(progress=progress)
     b = bounds or space.initial_bounds()
     notes: list[str] = []
     total_iter = 0

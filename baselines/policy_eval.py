@@ -122,7 +122,8 @@ def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
     pol = as_policy(policy)
     model = spec.model_def
     n = spec.state_dim
-    codec = StateCodec(n, max(s.cap_units for s in spec.order_slots))
+    radix_max = model.index_radix(spec)
+    codec = StateCodec(n, radix_max)
     pmf = spec.demand.pmf().normalized()
     limit = _stock_limit(spec)
     s0 = check_start(spec, start)
@@ -138,6 +139,10 @@ def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
         return model.step(spec, s, a, d)
 
     def clip_far(nxt: np.ndarray) -> np.ndarray:
+        if n > 1 and nxt[:, 1:].max(initial=0) > radix_max:
+            # beyond what the state index holds (e.g. stock piling up at an upper stage)
+            raise BudgetError(f"exact evaluation: the policy can reach a state entry beyond {radix_max:,} "
+                              "(other than the first), more than the state index holds — use simulation")
         if truncate_at is None:
             if np.abs(nxt[:, 0]).max(initial=0) > limit:
                 raise _Unbounded(f"exact evaluation: the policy can reach stock levels beyond +-{limit:,} "

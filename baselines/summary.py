@@ -9,6 +9,8 @@ from .exact import SolveResult, reachable_states
 def policy_structure(result: SolveResult) -> dict:
     """For backorders, whether the optimum is an order-up-to / (s,S) rule, with s and S."""
     mdp = result.mdp
+    if mdp is None:  # solved by a model's own exact method: the policy says what it is
+        return {"kind": "analytic", "policy": result.policy.describe()}
     reach = reachable_states(mdp, _choice(result))
     states = mdp.states[reach]
     orders = result.policy.orders[reach].sum(axis=1)
@@ -40,6 +42,8 @@ def _choice(result: SolveResult) -> np.ndarray:
 def summarize(result: SolveResult, max_rows: int = 12) -> list[str]:
     """A few lines saying what the optimal policy does in the states it actually visits."""
     info = policy_structure(result)
+    if info["kind"] == "analytic":
+        return [f"optimal policy: {info['policy']}"]
     lines = []
     kind = info.get("kind")
     if kind == "base_stock":

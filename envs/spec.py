@@ -155,7 +155,8 @@ class InstanceSpec:
             v = getattr(self, key)
             if v is not None and key not in unused:
                 d[key] = v
-        d.update(dict(self.extra))
+        # list-valued keys are kept as tuples (the spec is frozen) and written as lists
+        d.update({k: list(v) if isinstance(v, tuple) else v for k, v in self.extra if v is not None})
         d["demand"] = self.demand.to_dict()
         return d
 
@@ -180,6 +181,12 @@ def check_field(name: str, v: Any, f: Field) -> Any:
     """The value of one key, converted to the field's type, or SpecError naming the key and range."""
     if f.optional and v is None:
         return None
+    if f.length is not None:
+        lo, hi = f.length
+        if isinstance(v, (str, bytes)) or not isinstance(v, (list, tuple, np.ndarray)) or not lo <= len(v) <= hi:
+            raise SpecError(f"{name}: must be {f.range_text()}, got {v!r}")
+        item = f.item()
+        return tuple(check_field(f"{name}[{i}]", x, item) for i, x in enumerate(v))
     if f.choices:
         if not isinstance(v, str) or v not in f.choices:
             raise SpecError(f"{name}: must be {f.range_text()}, got {v!r}")

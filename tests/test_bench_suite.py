@@ -43,6 +43,7 @@ def test_quick_suite_has_everything_the_demo_needs():
     s = load_suite("quick")
     assert s.invented and len(s.instances) == 3
     names = {p.name for p in s.policies if p.kind == "classical"}
+    # every classical policy defined for a model the demo's instances use
     assert names == {n for n in policy_names() if any(supports(n, i.model) for i in s.instances)}
     kinds = {p.kind for p in s.policies}
     assert {"optimum", "agent"} <= kinds

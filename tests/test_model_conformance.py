@@ -73,7 +73,7 @@ def test_units_are_conserved_and_costs_nonnegative(name, data):
     nxt, out = model.step(spec, state, action, demand)
     # units in = units out (common practice): the position moves by the orders minus what left
     assert np.array_equal(model.position(spec, nxt),
-                          model.position(spec, state) + action.sum(axis=1) - model.units_out(out, demand))
+                          model.position(spec, state) + model.units_in(out, action) - model.units_out(out, demand))
     assert nxt.shape == state.shape and np.all(nxt >= model.state_low(spec))
     assert set(out.costs) == set(model.cost_parts)
     assert all(np.all(v >= 0) for v in out.costs.values())

@@ -15,6 +15,7 @@ from .capped_base_stock import CappedBaseStockPolicy
 from .capped_dual_index import CappedDualIndexPolicy
 from .constant_order import ConstantOrderPolicy
 from .dual_index import DualIndexPolicy
+from .echelon import EchelonBaseStockPolicy, InstallationBaseStockPolicy, ShangSongPolicy
 from .myopic import MyopicPolicy
 from .pil import PILPolicy
 from .s_s import SSPolicy
@@ -34,6 +35,9 @@ POLICIES: dict[str, type[PolicyBase]] = {
     "dual_index": DualIndexPolicy,
     "capped_dual_index": CappedDualIndexPolicy,
     "tailored_base_surge": TailoredBaseSurgePolicy,
+    "echelon_base_stock": EchelonBaseStockPolicy,
+    "shang_song": ShangSongPolicy,
+    "installation_base_stock": InstallationBaseStockPolicy,
 }
 
 _DESCRIPTIONS: dict[str, str] = {
@@ -50,6 +54,10 @@ _DESCRIPTIONS: dict[str, str] = {
     "dual_index": "dual sourcing: expedite up to S_e, then order regular up to S_r (params: S_e, S_r)",
     "capped_dual_index": "dual sourcing: expedite up to S_e, order regular up to S_r, at most r (params: S_e, S_r, r)",
     "tailored_base_surge": "dual sourcing: order r regular every period, expedite up to S_e (params: r, S_e)",
+    "echelon_base_stock": "serial chain: stage j orders up to s[j] on its echelon position (params: s, a list)",
+    "shang_song": "serial chain: echelon base-stock at the Shang-Song newsvendor-bound levels (no params)",
+    "installation_base_stock": "serial chain: stage j orders up to r[j] on its own stock, transit and "
+                               "the order from below (params: r, a list)",
 }
 
 

@@ -12,9 +12,10 @@ from .base import Field, InventoryModel, OrderSlot, Outcome
 from .dual_sourcing import MODEL as _DUAL_SOURCING
 from .lost_sales import MODEL as _LOST_SALES
 from .perishable import MODEL as _PERISHABLE
+from .serial import MODEL as _SERIAL
 
 MODELS: dict[str, InventoryModel] = {m.name: m for m in (_LOST_SALES, _BACKORDER, _PERISHABLE,
-                                                        _DUAL_SOURCING)}
+                                                        _DUAL_SOURCING, _SERIAL)}
 
 
 def _union(lists: list[tuple[str, ...]]) -> tuple[str, ...]:

@@ -29,8 +29,18 @@ class Field:
     lo_open: bool = False
     choices: tuple[str, ...] = ()
     optional: bool = False  # None is allowed (the model derives a value)
+    #: (shortest, longest): the value is a list of `type` values, each within lo .. hi
+    length: tuple[int, int] | None = None
+
+    def item(self) -> "Field":
+        """The field of one entry of a list-valued field."""
+        return Field(self.type, None, self.description, self.lo, self.hi, self.lo_open, self.choices)
 
     def range_text(self) -> str:
+        if self.length is not None:
+            a, b = self.length
+            n = f"{a}" if a == b else f"{a} to {b}"
+            return f"a list of {n} entries, each {self.item().range_text()}"
         if self.choices:
             return "one of " + ", ".join(self.choices)
         kind = "an integer" if self.type is int else "a number"
@@ -155,6 +165,16 @@ class InventoryModel:
         """Units that left the inventory position this period: the position moves by the
         orders placed minus this (checked on random inputs by the conformance test)."""
         return sum(outcome.flows[k] for k in self.departing)  # type: ignore[return-value]
+
+    def units_in(self, outcome: Outcome, action: np.ndarray) -> np.ndarray:
+        """Units that entered the inventory position this period: every order placed, unless
+        some orders only move stock inside the system (a serial chain's inner stages)."""
+        return np.asarray(action, dtype=np.int64).sum(axis=1)
+
+    def index_radix(self, spec: "InstanceSpec") -> int:
+        """Largest value of a state coordinate other than the first that a state index must
+        hold: one order (orders in transit, stock by age) unless the model says otherwise."""
+        return max(s.cap_units for s in self.order_slots(spec))
 
     # ------------------------------------------------------------------ model: exact solver
     def exact_space(self, spec: "InstanceSpec") -> "ExactSpace":  # model
