@@ -12,8 +12,7 @@ import pytest
 import invbench
 from invbench.baselines import clark_scarf as cs
 from invbench.baselines.exact import solve
-from invbench.baselines.policies.echelon import (EchelonBaseStockPolicy, InstallationBaseStockPolicy,
-                                                 ShangSongPolicy)
+from invbench.baselines.policies.echelon import (EchelonBaseStockPolicy, InstallationBaseStockPolicy)
 from invbench.baselines.policies.registry import make_policy, policies_for
 from invbench.baselines.policy_eval import evaluate_exact
 from invbench.envs.errors import SpecError
