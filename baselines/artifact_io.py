@@ -117,11 +117,32 @@ def arrays_blob(arrays: Mapping[str, Any], header: Mapping[str, str]) -> bytes:
     return save(plain, metadata=dict(header))
 
 
+def check_save_dir(path: str | Path, name: str = "directory") -> Path:
+    """A folder a policy may be saved to: new, empty, or holding a saved policy (replaced).
+    Checked before any work, so a long solve is not lost to a bad path."""
+    p = Path(path)
+    if p.exists() and not p.is_dir():
+        raise SpecError(f"{name}: {p} is an existing file, not a directory")
+    if p.is_dir() and not (p / META).is_file() and any(p.iterdir()):
+        raise SpecError(f"{name}: {p} is a non-empty folder without a saved policy; give a new or empty folder")
+    base = p
+    while not base.exists():
+        base = base.parent
+    if not base.is_dir():
+        raise SpecError(f"{name}: {p} lies under {base}, which is a file")
+    try:
+        with tempfile.TemporaryDirectory(dir=base, prefix=".invbench-write-test-"):
+            pass  # a real write test: permission bits say nothing for root or read-only mounts
+    except OSError as e:
+        raise SpecError(f"{name}: cannot write under {p} ({e.strerror or e})") from None
+    return p
+
+
 def write_policy_dir(directory: str | Path, meta: dict[str, Any], arrays: Mapping[str, Any] | None) -> Path:
     """Write one policy folder: the arrays first, policy.json last (a reader that sees the new
     policy.json also sees its arrays; a crash between the two leaves a checksum mismatch, refused)."""
     kind = meta["kind"]
-    d = Path(directory)
+    d = check_save_dir(directory)
     d.mkdir(parents=True, exist_ok=True)
     meta = dict(meta, format=FORMAT, format_version=FORMAT_VERSION)
     if arrays:
