@@ -61,8 +61,9 @@ def server(tmp_path_factory):
     invbench.save_policy(invbench.make_policy("base_stock", spec), d / "bs")
     bo = spec_from_dict(BACKORDER)
     invbench.save_policy(invbench.solve(bo), d / "bells", states="reachable")
+    _save_learned(spec, d / "net")
     port = _free_port()
-    proc = _start([str(d / "optimal"), f"base={d / 'bs'}", str(d / "bells"), "--port", str(port)])
+    proc = _start([str(d / "optimal"), f"base={d / 'bs'}", str(d / "bells"), str(d / "net"), "--port", str(port)])
     try:
         url = f"http://127.0.0.1:{port}"
         deadline = time.time() + 60
@@ -84,22 +85,35 @@ def server(tmp_path_factory):
     assert proc.poll() is not None
 
 
+def _save_learned(spec, path) -> None:
+    """An untrained network (seeded): what it orders does not matter, only that it is served exactly."""
+    import torch
+
+    from invbench.agents.learned_policy import LearnedPolicy
+    from invbench.agents.network import PolicyNet, architecture
+    from invbench.agents.scaling import Scaling
+    torch.manual_seed(0)
+    scaling = Scaling(obs_scale=3.0, obs_shift=1.0, reward_offset=4.0, reward_scale=4.0, case_pack=1,
+                      max_order_units=10, obs_clip=10.0, position_cap=20)
+    LearnedPolicy(spec, scaling, PolicyNet(architecture(2, (16,), 11, "tanh", "logits")), agent="test").save(path)
+
+
 def _states(n: int = 200, hi: int = 10) -> np.ndarray:
     return np.random.default_rng(3).integers(0, hi + 1, size=(n, 2))
 
 
 def test_health_and_policies(server):
     client, d = server
-    assert client.get("/health").json() == {"status": "ok", "policies": 3}
+    assert client.get("/health").json() == {"status": "ok", "policies": 4}
     listed = {p["name"]: p for p in client.get("/policies").json()}
-    assert set(listed) == {"optimal", "base", "bells"}
+    assert set(listed) == {"optimal", "base", "bells", "net"}
     for name, folder in (("optimal", "optimal"), ("base", "bs"), ("bells", "bells")):
         meta = json.loads((d / folder / "policy.json").read_text())
         assert listed[name]["digest"] == meta["digest"] and listed[name]["instance"] == meta["instance"]
     assert listed["base"]["kind"] == "classical" and listed["optimal"]["kind"] == "table"
 
 
-@pytest.mark.parametrize("name, folder", [("optimal", "optimal"), ("base", "bs")])
+@pytest.mark.parametrize("name, folder", [("optimal", "optimal"), ("base", "bs"), ("net", "net")])
 def test_orders_equal_policy_act_one_by_one_and_in_batches(server, name, folder):
     client, d = server
     pol = invbench.load_policy(d / folder)
@@ -131,7 +145,7 @@ def test_a_batch_may_mix_policies(server):
     ({"policy": "optimal", "state": [4, 5, 6]}, "state: must be a list of 2"),
     ({"policy": "optimal", "state": [4, 10**12]}, "state[1]"),
     ({"policy": "optimal"}, "state: must be a list"),
-    ({"policy": "nope", "state": [1, 1]}, "policy: must be one of optimal, base, bells"),
+    ({"policy": "nope", "state": [1, 1]}, "policy: must be one of optimal, base, bells, net"),
     ({"policy": "optimal", "state": [1, 1], "extra": 1}, "extra: unknown key"),
     ([{"policy": "optimal", "state": [1, 1]}, {"policy": "base", "state": [1, -2]}], "[1].state[1]"),
     ([], "body: a list of 1 to"),
