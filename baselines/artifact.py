@@ -53,6 +53,8 @@ def save_policy(obj: Any, directory: str | Path, *, states: str = "all",
         raise SpecError(f"states: must be one of {', '.join(STATE_SCOPES)}, got {states!r}")
     if not isinstance(directory, (str, Path)):
         raise SpecError(f"directory: must be a path, got {type(directory).__name__}")
+    from .artifact_io import check_save_dir
+    check_save_dir(directory)
     extra: dict[str, Any] = {"measured": dict(measured or {})}
     if _is_solve_result(obj):
         extra["optimum"] = obj.to_dict()

@@ -117,13 +117,14 @@ def arrays_blob(arrays: Mapping[str, Any], header: Mapping[str, str]) -> bytes:
     return save(plain, metadata=dict(header))
 
 
-def check_save_dir(path: str | Path, name: str = "directory") -> Path:
-    """A folder a policy may be saved to: new, empty, or holding a saved policy (replaced).
+def check_save_dir(path: str | Path, name: str = "directory", other_files: bool = False) -> Path:
+    """A folder a policy may be saved to: new, empty, or holding a saved policy (replaced);
+    with `other_files`, any folder (a training run keeps its curve and checkpoints beside it).
     Checked before any work, so a long solve is not lost to a bad path."""
     p = Path(path)
     if p.exists() and not p.is_dir():
         raise SpecError(f"{name}: {p} is an existing file, not a directory")
-    if p.is_dir() and not (p / META).is_file() and any(p.iterdir()):
+    if not other_files and p.is_dir() and not (p / META).is_file() and any(p.iterdir()):
         raise SpecError(f"{name}: {p} is a non-empty folder without a saved policy; give a new or empty folder")
     base = p
     while not base.exists():
@@ -142,7 +143,7 @@ def write_policy_dir(directory: str | Path, meta: dict[str, Any], arrays: Mappin
     """Write one policy folder: the arrays first, policy.json last (a reader that sees the new
     policy.json also sees its arrays; a crash between the two leaves a checksum mismatch, refused)."""
     kind = meta["kind"]
-    d = check_save_dir(directory)
+    d = check_save_dir(directory, other_files=True)
     d.mkdir(parents=True, exist_ok=True)
     meta = dict(meta, format=FORMAT, format_version=FORMAT_VERSION)
     if arrays:
