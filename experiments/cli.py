@@ -62,10 +62,14 @@ def register(subparsers: Any) -> None:
     b.add_argument("--no-report", action="store_true", help="do not write the report at the end")
     b.add_argument("--no-progress", action="store_true", help="no progress bar (summary lines only)")
     b.add_argument("--list", action="store_true", help="list the packaged suites and exit")
+    b.add_argument("--format", default=None, metavar="FMT,...",
+                   help="also write the figures as svg / pdf and the summary table as tex / md (or all)")
     b.set_defaults(func=_bench)
 
     r = subparsers.add_parser("report", help="write report.md, report.html and PNG plots for a results folder")
     r.add_argument("dir", help="results folder written by `invbench bench`")
+    r.add_argument("--format", default=None, metavar="FMT,...",
+                   help="also write the figures as svg / pdf and the summary table as tex / md (or all)")
     r.set_defaults(func=_report)
 
     c = subparsers.add_parser(
@@ -103,10 +107,15 @@ def _bench(args: argparse.Namespace) -> int:
         raise SpecError(f"--address: must be HOST:PORT of a running Ray cluster, got {args.address!r}")
     from .paths import check_output_dir
 
+    from .report import extra_files, parse_formats
+
     # Everything is checked before the first cell starts: the suite, completely, then --out.
+    formats = parse_formats(args.format)
+    if formats and args.no_report:
+        raise SpecError("--format: chooses report files; leave it out with --no-report")
     suite = load_suite(args.suite)
     out = check_output_dir(Path(args.out) if args.out else Path("runs") / suite.name, "--out",
-                           RESULT_DIRS, RESULT_FILES + (() if args.no_report else REPORT_FILES))
+                           RESULT_DIRS, RESULT_FILES + (() if args.no_report else REPORT_FILES + extra_files(formats)))
     from .runner import run_bench
 
     try:
@@ -131,8 +140,10 @@ def _bench(args: argparse.Namespace) -> int:
     if not args.no_report:
         from .report import write_report
 
-        rep = write_report(res.out)
+        rep = write_report(res.out, formats)
         print(f"report: {rep.html}")
+        for p in rep.extra:
+            print(f"  also: {p}")
     if res.failed:
         sys.stderr.write(f"invbench: {len(res.failed)} cell(s) failed; rerun the same command to retry them:\n")
         for line in res.failed[:20]:
@@ -143,13 +154,14 @@ def _bench(args: argparse.Namespace) -> int:
 
 def _report(args: argparse.Namespace) -> int:
     from .paths import check_output_dir
-    from .report import write_report
+    from .report import extra_files, parse_formats, write_report
 
+    formats = parse_formats(args.format)
     root = Path(args.dir)
     if not (root / "suite.toml").is_file():
         raise SpecError(f"dir: {root} has no suite.toml (give a results folder written by `invbench bench`)")
-    check_output_dir(root, "dir", RESULT_DIRS, REPORT_FILES)
-    rep = write_report(root)
+    check_output_dir(root, "dir", RESULT_DIRS, REPORT_FILES + extra_files(formats))
+    rep = write_report(root, formats)
     for p in rep.files():
         print(p)
     for original, moved, reason in rep.unread:

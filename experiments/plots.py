@@ -1,8 +1,9 @@
 """The report's figures, drawn from a results table and the cell records (matplotlib, Agg).
 
 Each function writes one PNG and returns its path, or None when the run has nothing to draw
-for it (e.g. no agent cells: no learning curves). Every figure has a title, axis labels with
-units and a legend.
+for it (e.g. no agent cells: no learning curves); with `formats` ("svg", "pdf") the same figure
+is also written next to it in those vector formats, for papers. Every figure has a title, axis
+labels with units and a legend.
 """
 from __future__ import annotations
 
@@ -25,15 +26,26 @@ SWEEP_GROUP_FIELDS = ("model", "holding_cost", "shortage_cost", "unit_order_cost
                       "case_pack", "demand")
 
 
-def _save(fig: Any, path: Path) -> Path:
+#: Vector formats a figure can also be written in (matplotlib's own backends).
+FIGURE_FORMATS = ("svg", "pdf")
+
+
+def _save(fig: Any, path: Path, formats: tuple[str, ...] = ()) -> Path:
     from .store import atomic_write  # late: the store does not need matplotlib
 
-    buf = io.BytesIO()
+    out: dict[Path, bytes] = {}
     try:
-        fig.savefig(buf, format="png", dpi=DPI, bbox_inches="tight")
+        for fmt in ("png", *[f for f in formats if f in FIGURE_FORMATS]):
+            buf = io.BytesIO()
+            # metadata: no creation date, so the same results give the same files
+            meta = {"CreationDate": None} if fmt == "pdf" else {"Date": None} if fmt == "svg" else {}
+            with plt.rc_context({"svg.hashsalt": "invbench"}):  # fixed ids in the SVG, not random ones
+                fig.savefig(buf, format=fmt, dpi=DPI, bbox_inches="tight", metadata=meta)
+            out[path.with_suffix(f".{fmt}")] = buf.getvalue()
     finally:
         plt.close(fig)
-    atomic_write(path, buf.getvalue())  # a killed report never leaves half a PNG
+    for p, data in out.items():
+        atomic_write(p, data)  # a killed report never leaves half a figure
     return path
 
 
@@ -59,7 +71,7 @@ def policy_gaps(df: pd.DataFrame) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def gap_chart(df: pd.DataFrame, path: Path, suite: str) -> Path | None:
+def gap_chart(df: pd.DataFrame, path: Path, suite: str, formats: tuple[str, ...] = ()) -> Path | None:
     """Grouped bars: gap to the optimum per instance (groups) and policy (colours), CI whiskers."""
     g = policy_gaps(df)
     if g.empty:
@@ -96,10 +108,11 @@ def gap_chart(df: pd.DataFrame, path: Path, suite: str) -> Path | None:
                  "(average cost per period; whiskers: 95% confidence interval)")
     ax.legend(title="policy", fontsize=8, loc="upper left", bbox_to_anchor=(1.01, 1.0))
     ax.grid(axis="y", alpha=0.3)
-    return _save(fig, path)
+    return _save(fig, path, formats)
 
 
-def learning_curves(curves: list[dict[str, Any]], optimum: dict[str, float], path: Path) -> Path | None:
+def learning_curves(curves: list[dict[str, Any]], optimum: dict[str, float], path: Path,
+                    formats: tuple[str, ...] = ()) -> Path | None:
     """Cost of the greedy policy vs training steps, one panel per instance, optimum dashed."""
     curves = [c for c in curves if c.get("rows")]
     if not curves:
@@ -131,11 +144,11 @@ def learning_curves(curves: list[dict[str, Any]], optimum: dict[str, float], pat
         ax.set_visible(False)
     fig.suptitle("Learning curves: cost of the greedy policy during training", fontsize=12)
     fig.tight_layout()
-    return _save(fig, path)
+    return _save(fig, path, formats)
 
 
 def policy_map_chart(instance: str, optimal: dict[str, Any], other: dict[str, Any], other_label: str,
-                     path: Path) -> Path:
+                     path: Path, formats: tuple[str, ...] = ()) -> Path:
     """Optimal order, the other policy's order and their difference over on-hand x pipeline."""
     a = np.asarray(optimal["orders"], dtype=float)
     b = np.asarray(other["orders"], dtype=float)
@@ -161,10 +174,11 @@ def policy_map_chart(instance: str, optimal: dict[str, Any], other: dict[str, An
                  f"(orders differ on {share:.0f}% of the grid; pipeline spread evenly over the orders in transit)",
                  fontsize=11)
     fig.tight_layout()
-    return _save(fig, path)
+    return _save(fig, path, formats)
 
 
-def gap_vs_lead_time(df: pd.DataFrame, path: Path, suite: str) -> Path | None:
+def gap_vs_lead_time(df: pd.DataFrame, path: Path, suite: str,
+                     formats: tuple[str, ...] = ()) -> Path | None:
     """Gap (%) vs lead time, one line per policy; one panel per setting of the other fields."""
     g = policy_gaps(df)
     if g.empty or g["lead_time"].nunique() < 2:
@@ -202,7 +216,7 @@ def gap_vs_lead_time(df: pd.DataFrame, path: Path, suite: str) -> Path | None:
     fig.legend(handles, labels, title="policy", loc="center left", bbox_to_anchor=(1.0, 0.5), fontsize=9)
     fig.suptitle(f"Gap to the optimum vs lead time — suite {suite}", fontsize=12)
     fig.tight_layout()
-    return _save(fig, path)
+    return _save(fig, path, formats)
 
 
 def _short(field: str) -> str:

@@ -2,7 +2,8 @@
 
 The report is built once as a list of blocks (headings, paragraphs, tables, figures) and
 rendered twice, to Markdown (figures linked) and to HTML (figures embedded as base64), so the
-two never disagree.
+two never disagree. For papers, `formats` adds the figures as SVG and PDF and the summary
+table as LaTeX (`summary.tex`, booktabs) and Markdown (`summary.md`).
 """
 from __future__ import annotations
 
@@ -15,8 +16,36 @@ from typing import Any
 
 import pandas as pd
 
+from invbench.envs.errors import SpecError
+
 from . import plots
 from .store import ResultStore, atomic_write
+
+
+#: Extra outputs `formats` may ask for: figures as svg / pdf, the summary table as tex / md.
+REPORT_FORMATS = ("svg", "pdf", "tex", "md")
+FIGURE_NAMES = ("gap", "gap_vs_lead_time", "learning_curves", "policy_map")
+SUMMARY_NAMES = ("summary.tex", "summary.md")
+
+
+def parse_formats(text: str | None, field: str = "--format") -> tuple[str, ...]:
+    """"svg,pdf" -> ("svg", "pdf"); "all" -> every format; None or "" -> none."""
+    if not text:
+        return ()
+    items = [t.strip().lower() for t in str(text).split(",") if t.strip()]
+    if items == ["all"]:
+        return REPORT_FORMATS
+    bad = [t for t in items if t not in REPORT_FORMATS]
+    if bad or not items:
+        raise SpecError(f"{field}: must be a comma-separated list of {', '.join(REPORT_FORMATS)} (or all), "
+                        f"got {text!r}")
+    return tuple(dict.fromkeys(items))
+
+
+def extra_files(formats: tuple[str, ...]) -> tuple[str, ...]:
+    """Names of the files `formats` adds to a results folder (for the output check)."""
+    figs = tuple(f"{n}.{f}" for n in FIGURE_NAMES for f in formats if f in ("svg", "pdf"))
+    return figs + tuple(n for n in SUMMARY_NAMES if n.split(".")[1] in formats)
 
 
 @dataclass
@@ -26,13 +55,15 @@ class ReportResult:
     pngs: list[Path] = field(default_factory=list)
     #: (original file, file in damaged/, reason) of cell files that could not be read
     unread: list[tuple[str, str, str]] = field(default_factory=list)
+    #: figures in vector formats and the summary table as LaTeX / Markdown, when asked for
+    extra: list[Path] = field(default_factory=list)
 
     def files(self) -> list[Path]:
-        return [self.md, self.html, *self.pngs]
+        return [self.md, self.html, *self.pngs, *self.extra]
 
     def to_dict(self) -> dict[str, Any]:
         return {"md": str(self.md), "html": str(self.html), "pngs": [str(p) for p in self.pngs],
-                "unread": [list(u) for u in self.unread]}
+                "extra": [str(p) for p in self.extra], "unread": [list(u) for u in self.unread]}
 
 
 def _pct(v: Any, digits: int = 2) -> str:
@@ -52,8 +83,10 @@ def _params(txt: Any) -> str:
     return ", ".join(f"{k}={v}" for k, v in d.items())
 
 
-def write_report(root: str | Path) -> ReportResult:
-    """Rebuild the table from the cell files, draw the figures and write both report files."""
+def write_report(root: str | Path, formats: tuple[str, ...] = ()) -> ReportResult:
+    """Rebuild the table from the cell files, draw the figures and write both report files;
+    `formats` (see `parse_formats`) adds vector figures and the summary table for papers."""
+    formats = parse_formats(",".join(formats), "formats") if formats else ()
     store = ResultStore(root)
     suite = store.suite()
     df = store.write_table(suite)
@@ -81,24 +114,25 @@ def write_report(root: str | Path) -> ReportResult:
                         "give a 95% confidence interval (CI) from independent replications with common "
                         "random numbers across policies."))
     blocks.append(("h2", "Gap to the optimum"))
-    figure(plots.gap_chart(df, root / "gap.png", suite.name),
+    figure(plots.gap_chart(df, root / "gap.png", suite.name, formats),
            "Gap to the optimum per instance and policy, with 95% CI whiskers.")
     blocks.append(("h2", "Summary by policy"))
-    blocks.append(("table", _summary_table(df)))
+    summary = _summary_table(df)
+    blocks.append(("table", summary))
     if suite.sweep == "lead_time":
         blocks.append(("h2", "Gap vs lead time"))
-        figure(plots.gap_vs_lead_time(df, root / "gap_vs_lead_time.png", suite.name),
+        figure(plots.gap_vs_lead_time(df, root / "gap_vs_lead_time.png", suite.name, formats),
                "How each policy's gap grows with the lead time.")
     curves, optimum = _curves(df, records)
     if curves:
         blocks.append(("h2", "Learning curves"))
-        figure(plots.learning_curves(curves, optimum, root / "learning_curves.png"),
+        figure(plots.learning_curves(curves, optimum, root / "learning_curves.png", formats),
                "Cost of the greedy policy during training; dashed: the optimum.")
     pm = _policy_map(df, records)
     if pm is not None:
         inst, opt_map, other_map, label = pm
         blocks.append(("h2", "Policy map"))
-        figure(plots.policy_map_chart(inst, opt_map, other_map, label, root / "policy_map.png"),
+        figure(plots.policy_map_chart(inst, opt_map, other_map, label, root / "policy_map.png", formats),
                f"Optimal order vs {label} on {inst}, over on-hand stock and pipeline total.")
     blocks.append(("h2", "Results per instance"))
     for inst, g in df.groupby("instance", sort=False):
@@ -118,7 +152,14 @@ def write_report(root: str | Path) -> ReportResult:
     md_path, html_path = root / "report.md", root / "report.html"
     atomic_write(md_path, _to_md(blocks))
     atomic_write(html_path, _to_html(blocks, root, suite.name))
-    return ReportResult(md_path, html_path, pngs, unread)
+    extra = [p.with_suffix(f".{f}") for p in pngs for f in formats if f in plots.FIGURE_FORMATS]
+    if "md" in formats:
+        atomic_write(root / "summary.md", f"Summary by policy: {suite.name}\n\n" + _to_md([("table", summary)]))
+        extra.append(root / "summary.md")
+    if "tex" in formats:
+        atomic_write(root / "summary.tex", _to_latex(summary, suite.name))
+        extra.append(root / "summary.tex")
+    return ReportResult(md_path, html_path, pngs, unread, extra)
 
 
 def _unread(store: ResultStore, df: pd.DataFrame) -> list[tuple[str, str, str]]:
@@ -218,6 +259,17 @@ def _policy_map(df: pd.DataFrame, records: dict[str, Any]) -> tuple[str, dict, d
 
 
 # ---------------------------------------------------------------------------- rendering
+def _to_latex(table: tuple[list[str], list[list[str]]], suite: str) -> str:
+    """A booktabs table (needs \\usepackage{booktabs}); text is escaped for LaTeX by pandas."""
+    head, rows = table
+    df = pd.DataFrame(rows, columns=head)
+    body = df.to_latex(index=False, escape=True, column_format="l" + "r" * (len(head) - 1),
+                       caption=f"Gap to the certified optimum by policy ({suite}).",
+                       label=f"tab:{suite.replace(' ', '-')}-summary")
+    return f"% written by invbench report; needs \\usepackage{{booktabs}}\n{body}"
+
+
+
 def _to_md(blocks: list[tuple[str, Any]]) -> str:
     out = []
     for kind, val in blocks:

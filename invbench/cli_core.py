@@ -17,7 +17,7 @@ from invbench.baselines.exact import DEFAULT_MAX_MEMORY_MB, DEFAULT_MAX_STATES
 from invbench.envs.errors import SpecError
 from invbench.experiments.simulate import DEFAULT_MAX_PERIOD_STEPS
 
-from .cli_args import add_demand_limit, check_spec_file, integer, number
+from .cli_args import add_demand_limit, check_output_dir, check_spec_file, integer, number
 
 
 def _parse_params(items: list[str] | None) -> dict[str, Any]:
@@ -38,16 +38,46 @@ def _parse_params(items: list[str] | None) -> dict[str, Any]:
     return out
 
 
+def _check_table_file(path: str) -> Path:
+    p = Path(path)
+    if p.suffix.lower() not in (".csv", ".parquet"):
+        raise SpecError(f"--table: the file must end in .csv or .parquet, got {p.name!r}")
+    if p.is_dir():
+        raise SpecError(f"--table: {p} is a directory, not a file")
+    check_output_dir(p.parent, "--table")
+    if p.suffix.lower() == ".parquet":
+        try:
+            import pyarrow  # noqa: F401
+        except ImportError:
+            raise SpecError("--table: writing .parquet needs pyarrow (pip install pyarrow), or use .csv") from None
+    return p
+
+
 def _solve(args: argparse.Namespace) -> int:
     from invbench.api import load_spec, solve
+    from invbench.baselines.artifact import export_table, save_policy
+    from invbench.baselines.artifact_io import check_save_dir
     from invbench.baselines.summary import summarize
     spec = load_spec(check_spec_file(args.spec))
+    if args.save:  # output paths before the work
+        check_save_dir(args.save, "--save")
+    if args.table:
+        _check_table_file(args.table)
     res = solve(spec, rel_tol=args.rel_tol, max_states=args.max_states, max_memory_mb=args.max_memory_mb,
                 progress=not args.json and sys.stderr.isatty())
+    saved = []
+    if args.save:
+        save_policy(res, args.save, states=args.states)
+        saved.append(f"optimal policy ({args.states} states) saved to {args.save}")
+    if args.table:
+        export_table(res, args.table, states=args.states)
+        saved.append(f"optimal table ({args.states} states) written to {args.table}")
     if args.json:
         d = res.to_dict()
         d["instance"] = spec.to_dict()
         print(json.dumps(d, indent=2))
+        for line in saved:
+            sys.stderr.write(line + "\n")
         return 0
     print(f"instance: {spec.label}")
     word = "average cost per period" if res.criterion == "average" else "discounted cost from empty start"
@@ -59,30 +89,29 @@ def _solve(args: argparse.Namespace) -> int:
         print(line)
     for note in res.notes:
         print(f"note: {note}")
+    for line in saved:
+        print(line)
     return 0
 
 
 def _load_any_policy(spec: Any, name: str, params: dict[str, Any], progress: bool = False,
                      allow_other_instance: bool = False) -> Any:
-    """A classical policy by name, or a trained policy from its folder (told apart by the path)."""
+    """A classical policy by name, or a saved policy from its folder (told apart by the path)."""
+    from invbench.baselines.artifact import load_policy
     from invbench.baselines.policies.registry import make_policy, policy_names
     path = Path(name)
     if path.is_dir():
         if params:
-            raise SpecError(f"--param: a trained policy ({name}) takes no parameters")
-        try:
-            from invbench.agents import load_policy
-        except ImportError:
-            raise SpecError(f"--policy: {name} is a directory but the agents part is not installed") from None
+            raise SpecError(f"--param: a saved policy ({name}) takes no parameters")
         return load_policy(name, spec=spec, allow_other_instance=allow_other_instance)
     if path.exists():
         raise SpecError(f"--policy: {name} is a file; give a policy name ({', '.join(policy_names())}) "
-                        "or a trained-policy folder")
+                        "or a saved-policy folder")
     if name not in policy_names():
         if "/" in name or os.sep in name or name.startswith((".", "~")):
-            raise SpecError(f"--policy: folder {name!r} does not exist (expected a trained-policy folder "
-                            "holding policy.json and weights.safetensors)")
-        raise SpecError(f"--policy: must be one of {', '.join(policy_names())} or a trained-policy folder, "
+            raise SpecError(f"--policy: folder {name!r} does not exist (expected a saved-policy folder "
+                            "holding policy.json)")
+        raise SpecError(f"--policy: must be one of {', '.join(policy_names())} or a saved-policy folder, "
                         f"got {name!r} (no such name or folder)")
     return make_policy(spec, name, params or None, progress=progress)
 
@@ -92,6 +121,9 @@ def _evaluate(args: argparse.Namespace) -> int:
     from invbench.experiments.simulate import check_simulation_budget
     spec = load_spec(check_spec_file(args.spec))
     params = _parse_params(args.param)
+    if args.save:  # before the policy is optimised
+        from invbench.baselines.artifact_io import check_save_dir
+        check_save_dir(args.save, "--save")
     tty = sys.stderr.isatty() and not args.json
     method = "exact" if args.exact else "simulate" if args.simulate else "auto"
     if method != "exact":  # before the policy is optimised or the optimum solved
@@ -105,8 +137,13 @@ def _evaluate(args: argparse.Namespace) -> int:
     ev = evaluate(spec, policy, method=method, optimum=opt, replications=args.replications,
                   periods=args.periods, warmup=args.warmup, seed=args.seed, progress=tty,
                   max_period_steps=args.max_period_steps, max_memory_mb=args.max_memory_mb)
+    if args.save:
+        from invbench.baselines.artifact import save_policy
+        save_policy(policy, args.save, measured=ev.to_dict())
     if args.json:
         print(json.dumps(ev.to_dict(), indent=2))
+        if args.save:
+            sys.stderr.write(f"policy saved to {args.save}\n")
         return 0
     print(f"instance: {spec.label}")
     print(f"policy: {ev.policy}")
@@ -117,6 +154,8 @@ def _evaluate(args: argparse.Namespace) -> int:
         print(f"gap to optimum ({ev.optimum:.6f}): {100 * ev.gap:.3f} %")
     if ev.note:
         print(f"note: {ev.note}")
+    if args.save:
+        print(f"policy saved to {args.save} (use it with `invbench decide {args.save} --state ...`)")
     return 0
 
 
@@ -142,12 +181,17 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help=f"refuse instances with more states (default {DEFAULT_MAX_STATES:,})")
     p.add_argument("--max-memory-mb", type=number(0, lo_open=True), default=DEFAULT_MAX_MEMORY_MB,
                    help=f"refuse instances whose estimated peak memory is larger (default {DEFAULT_MAX_MEMORY_MB:,} MiB)")
+    p.add_argument("--save", metavar="DIR", help="save the optimal policy to DIR (for decide, serve, evaluate)")
+    p.add_argument("--table", metavar="FILE", help="write the optimal table as FILE.csv or FILE.parquet")
+    p.add_argument("--states", choices=("all", "reachable"), default="all",
+                   help="what --save and --table keep: every state of the solver's space (default) or only "
+                        "those reachable from the empty start under the optimal policy")
     add_demand_limit(p)
     p.set_defaults(func=_solve)
 
     p = sub.add_parser("evaluate", help="cost of a policy on an instance, exact or simulated")
     p.add_argument("spec", help="instance TOML file")
-    p.add_argument("--policy", required=True, help="policy name (see `invbench policies`) or a trained-agent folder")
+    p.add_argument("--policy", required=True, help="policy name (see `invbench policies`) or a saved-policy folder")
     p.add_argument("--param", action="append", metavar="KEY=VALUE", help="policy parameter; omit all to optimise")
     g = p.add_mutually_exclusive_group()
     g.add_argument("--exact", action="store_true", help="exact evaluation only (fails if too large)")
@@ -162,7 +206,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--max-memory-mb", type=number(0, lo_open=True), default=DEFAULT_MAX_MEMORY_MB,
                    help=f"memory limit of the simulation and of --gap's solve (default {DEFAULT_MAX_MEMORY_MB:,} MiB)")
     p.add_argument("--allow-other-instance", action="store_true",
-                   help="apply a trained policy to an instance other than the one it was trained for")
+                   help="apply a saved policy to an instance other than the one it was made for")
+    p.add_argument("--save", metavar="DIR", help="save the policy (with its parameters and this evaluation) to DIR")
     add_demand_limit(p)
     p.add_argument("--json", action="store_true")
     p.set_defaults(func=_evaluate)
