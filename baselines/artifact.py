@@ -56,6 +56,10 @@ def save_policy(obj: Any, directory: str | Path, *, states: str = "all",
     from .artifact_io import check_save_dir
     check_save_dir(directory)
     extra: dict[str, Any] = {"measured": dict(measured or {})}
+    if _is_solve_result(obj) and not isinstance(obj.policy, TablePolicy):
+        # a decomposition's optimum is a classical policy (e.g. echelon base-stock levels): save
+        # that policy, with the certified result beside it
+        return save_policy(obj.policy, directory, measured={**dict(measured or {}), "optimum": obj.to_dict()})
     if _is_solve_result(obj):
         extra["optimum"] = obj.to_dict()
         rows = None

@@ -1,8 +1,8 @@
 """Command line: `invbench solve|evaluate|policies|demo|...`.
 
-Bad input of any kind ends with one line on stderr naming the field and exit code 2. Commands
-from other parts (training, benchmarks) plug in through `PLUGIN_MODULES`: each module has
-`register(subparsers)` that adds its parsers and sets `func` on them.
+Bad input of any kind ends with one line on stderr naming the field and exit code 2. Each part
+keeps its own commands in a module listed in `COMMAND_MODULES`, whose `register(subparsers)`
+adds its parsers and sets `func` on them.
 """
 from __future__ import annotations
 
@@ -13,7 +13,7 @@ from typing import Sequence
 
 from invbench.envs.errors import BudgetError, SpecError
 
-PLUGIN_MODULES = ("invbench.cli_core", "invbench.agents.cli", "invbench.experiments.cli", "invbench.fitting.cli",
+COMMAND_MODULES = ("invbench.commands", "invbench.agents.cli", "invbench.experiments.cli", "invbench.fitting.cli",
                   "invbench.service.cli")
 
 
@@ -30,14 +30,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="invbench", description="Inventory-control bench: exact optima, classical policies, RL agents.")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
-    for mod in PLUGIN_MODULES:
-        try:
-            module = importlib.import_module(mod)
-        except ModuleNotFoundError as e:
-            if e.name == mod:  # that part is not there; its commands are simply absent
-                continue
-            raise
-        module.register(sub)
+    for mod in COMMAND_MODULES:
+        importlib.import_module(mod).register(sub)
     return parser
 
 

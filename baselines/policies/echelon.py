@@ -115,8 +115,13 @@ class ShangSongPolicy(EchelonBaseStockPolicy):
 
     @classmethod
     def from_params(cls, spec: InstanceSpec, **params: Any) -> "ShangSongPolicy":
-        check_names(cls.name, params, ())
-        return cls.optimize(spec)
+        """No parameters: the levels follow from the instance. `s` (as `params()` reports them,
+        e.g. from a saved policy) is accepted only when it equals those levels."""
+        check_names(cls.name, params, (), ("s",))
+        pol = cls.optimize(spec)
+        if "s" in params and level_list("s", params["s"], spec) != list(pol.s):
+            raise SpecError(f"param.s: the Shang-Song levels of this instance are {list(pol.s)}, got {params['s']!r}")
+        return pol
 
     @classmethod
     def optimize(cls, spec: InstanceSpec, progress: bool = False,
