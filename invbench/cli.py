@@ -13,7 +13,8 @@ from typing import Sequence
 
 from invbench.envs.errors import BudgetError, SpecError
 
-PLUGIN_MODULES = ("invbench.cli_core", "invbench.agents.cli", "invbench.experiments.cli", "invbench.fitting.cli")
+PLUGIN_MODULES = ("invbench.cli_core", "invbench.agents.cli", "invbench.experiments.cli", "invbench.fitting.cli",
+                  "invbench.portfolio.cli")
 
 
 class _UsageError(Exception):
