@@ -122,10 +122,11 @@ def _portfolio(args: argparse.Namespace) -> int:
     src = Path(args.items)
     name = suite_name(args.name or (src.name if src.is_dir() and src.name else src.stem))
     out = check_output_dir(Path(args.out) if args.out else Path("runs") / f"portfolio-{name}", "--out",
-                           OUTPUT_DIRS, OUTPUT_FILES + ("" if args.no_report else REPORT_FILES))
+                           OUTPUT_DIRS, OUTPUT_FILES + (() if args.no_report else REPORT_FILES))
     for stage in OUTPUT_DIRS:
         check_output_dir(out / stage, "--out", RESULT_DIRS, RESULT_FILES + ("cells.log",))
-    print(f"portfolio {name}: {len(items)} items -> {out} (one line per cell in {out}/*/cells.log)", flush=True)
+    print(f"portfolio {name}: {len(items)} items -> {out} (one line per cell in {out}/*/cells.log)", flush=True,
+          file=sys.stderr if args.json else sys.stdout)  # with --json, stdout holds the JSON only
     try:
         with stop_on_sigterm():
             res = run_portfolio(items, out, histories=hist, name=name, policies=o["policies"], agent=o["agent"],

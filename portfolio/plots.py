@@ -53,7 +53,10 @@ def regret_chart(robust: pd.DataFrame, path: Path, title: str) -> Path | None:
     kinds = list(dict.fromkeys(ok["alternative"]))
     data = [100 * ok.loc[ok["alternative"] == k, "regret_rel"].to_numpy(float) for k in kinds]
     fig, ax = plt.subplots(figsize=(7, 3.6))
-    ax.boxplot(data, vert=False, whis=(5, 95), showfliers=True)
+    try:
+        ax.boxplot(data, orientation="horizontal", whis=(5, 95), showfliers=True)
+    except TypeError:  # matplotlib < 3.10 names it `vert`
+        ax.boxplot(data, vert=False, whis=(5, 95), showfliers=True)
     ax.set_yticks(range(1, len(kinds) + 1), [f"{k} ({len(d)})" for k, d in zip(kinds, data)])
     ax.set_xlabel("regret: cost on the alternative above its own optimum (% of that optimum)")
     ax.set_title(f"{title}: regret of the chosen policy when demand follows another law")
