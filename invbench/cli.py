@@ -14,7 +14,7 @@ from typing import Sequence
 from invbench.envs.errors import BudgetError, SpecError
 
 COMMAND_MODULES = ("invbench.commands", "invbench.agents.cli", "invbench.experiments.cli", "invbench.fitting.cli",
-                  "invbench.service.cli")
+                  "invbench.service.cli", "invbench.portfolio.cli")
 
 
 class _UsageError(Exception):
