@@ -21,6 +21,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from invbench.envs.paths import check_output_dir
 from invbench.envs.errors import SpecError
 
 FORMAT = "invbench-policy"
@@ -126,17 +127,7 @@ def check_save_dir(path: str | Path, name: str = "directory", other_files: bool 
         raise SpecError(f"{name}: {p} is an existing file, not a directory")
     if not other_files and p.is_dir() and not (p / META).is_file() and any(p.iterdir()):
         raise SpecError(f"{name}: {p} is a non-empty folder without a saved policy; give a new or empty folder")
-    base = p
-    while not base.exists():
-        base = base.parent
-    if not base.is_dir():
-        raise SpecError(f"{name}: {p} lies under {base}, which is a file")
-    try:
-        with tempfile.TemporaryDirectory(dir=base, prefix=".invbench-write-test-"):
-            pass  # a real write test: permission bits say nothing for root or read-only mounts
-    except OSError as e:
-        raise SpecError(f"{name}: cannot write under {p} ({e.strerror or e})") from None
-    return p
+    return check_output_dir(p, name)
 
 
 def write_policy_dir(directory: str | Path, meta: dict[str, Any], arrays: Mapping[str, Any] | None) -> Path:

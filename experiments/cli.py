@@ -105,7 +105,7 @@ def _bench(args: argparse.Namespace) -> int:
         raise SpecError("--address: only used with --backend ray")
     if args.address is not None and (not args.address.strip() or any(c.isspace() for c in args.address)):
         raise SpecError(f"--address: must be HOST:PORT of a running Ray cluster, got {args.address!r}")
-    from .paths import check_output_dir
+    from invbench.envs.paths import check_output_dir
 
     from .report import extra_files, parse_formats
 
@@ -153,7 +153,7 @@ def _bench(args: argparse.Namespace) -> int:
 
 
 def _report(args: argparse.Namespace) -> int:
-    from .paths import check_output_dir
+    from invbench.envs.paths import check_output_dir
     from .report import extra_files, parse_formats, write_report
 
     formats = parse_formats(args.format)
@@ -171,7 +171,7 @@ def _report(args: argparse.Namespace) -> int:
 
 
 def _compare(args: argparse.Namespace) -> int:
-    from .paths import check_output_file
+    from invbench.envs.paths import check_output_file
     from .store import TIMING_COLUMNS, atomic_write, compare_results, read_table
 
     rtol = float_option(args.rtol_exact, "--rtol-exact", 0.0, 1.0)

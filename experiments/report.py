@@ -151,7 +151,7 @@ def write_report(root: str | Path, formats: tuple[str, ...] = ()) -> ReportResul
         blocks.append(("table", (["file", "moved to", "problem"], [list(u) for u in unread])))
     md_path, html_path = root / "report.md", root / "report.html"
     atomic_write(md_path, _to_md(blocks))
-    atomic_write(html_path, _to_html(blocks, root, suite.name))
+    atomic_write(html_path, blocks_to_html(blocks, root, suite.name))
     extra = [p.with_suffix(f".{f}") for p in pngs for f in formats if f in plots.FIGURE_FORMATS]
     if "md" in formats:
         atomic_write(root / "summary.md", f"Summary by policy: {suite.name}\n\n" + _to_md([("table", summary)]))
@@ -302,10 +302,11 @@ for(var i=0;i<im.length;i++){if(im[i].complete&&im[i].naturalWidth>0)n++;}
 document.body.setAttribute('data-images-loaded',n+'/'+im.length);});"""
 
 
-def _to_html(blocks: list[tuple[str, Any]], root: Path, title: str) -> str:
+def blocks_to_html(blocks: list[tuple[str, Any]], root: Path, title: str, kind: str = "report") -> str:
+    """A self-contained page (figures inlined) from (kind, value) blocks; shared by the reports."""
     e = html.escape
     out = ["<!DOCTYPE html>", "<html lang=\"en\"><head><meta charset=\"utf-8\">",
-           f"<title>invbench report: {e(title)}</title><style>{_CSS}</style></head><body>"]
+           f"<title>invbench {e(kind)}: {e(title)}</title><style>{_CSS}</style></head><body>"]
     for kind, val in blocks:
         if kind in ("h1", "h2", "h3"):
             out.append(f"<{kind}>{e(val)}</{kind}>")

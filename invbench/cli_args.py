@@ -8,11 +8,11 @@ from __future__ import annotations
 
 import argparse
 import math
-import tempfile
 from pathlib import Path
 from typing import Any, Callable
 
 from invbench.envs.demand import DEFAULT_MAX_SUPPORT
+from invbench.envs import paths
 from invbench.envs.errors import SpecError
 
 
@@ -84,19 +84,5 @@ def check_spec_file(path: str | Path) -> Path:
 
 
 def check_output_dir(path: str | Path, name: str = "--out") -> Path:
-    """A directory that can be created or written: refused before any work when it is an
-    existing file, lies under a file, or its nearest existing folder cannot be written."""
-    p = Path(path)
-    try:
-        if p.exists() and not p.is_dir():
-            raise SpecError(f"{name}: {p} is an existing file, not a directory")
-        base = p
-        while not base.exists():
-            base = base.parent
-        if not base.is_dir():
-            raise SpecError(f"{name}: {p} lies under {base}, which is a file")
-        with tempfile.TemporaryDirectory(dir=base, prefix=".invbench-write-test-"):
-            pass  # a real write test: permission bits say nothing for root or read-only mounts
-    except OSError as e:
-        raise SpecError(f"{name}: cannot write under {p} ({e.strerror or e})") from None
-    return p
+    """A directory that can be created or written (`envs/paths.py`), checked before any work."""
+    return paths.check_output_dir(path, name)

@@ -100,7 +100,7 @@ def _histories(path: str | None, names: list[str]) -> dict[str, Any] | None:
 def _portfolio(args: argparse.Namespace) -> int:
     from invbench.experiments.cli import RESULT_DIRS, RESULT_FILES
     from invbench.experiments.interrupts import Terminated, stop_on_sigterm
-    from invbench.experiments.paths import check_output_dir
+    from invbench.envs.paths import check_output_dir
     from invbench.experiments.suite import MAX_GRID
 
     from .items import read_portfolio

@@ -4,12 +4,11 @@ bounded (totals, bins, the worst items), so it reads the same for 30 or 10,000 i
 """
 from __future__ import annotations
 
-import base64
-import html
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from invbench.experiments.report import blocks_to_html
 from invbench.experiments.store import atomic_write
 
 from . import plots
@@ -80,7 +79,7 @@ def write_report(res: Any) -> PortfolioReport:
                         "alternative is robustness.csv; per-cell results are in choice/ and robustness/."))
     md, page = out / "report.md", out / "report.html"
     atomic_write(md, _to_md(blocks))
-    atomic_write(page, _to_html(blocks, out, res.name))
+    atomic_write(page, blocks_to_html(blocks, out, res.name, kind="portfolio"))
     return PortfolioReport(md, page, pngs)
 
 
@@ -138,29 +137,3 @@ def _to_md(blocks: list[tuple[str, Any]]) -> str:
     return "\n".join(out)
 
 
-_CSS = ("body{font-family:system-ui,sans-serif;max-width:1100px;margin:2em auto;padding:0 1em;color:#222}"
-        "table{border-collapse:collapse;margin:.6em 0 1.2em;font-size:.9em}th,td{border:1px solid #ccc;"
-        "padding:.25em .6em;text-align:right}th{background:#eef2f6}td:first-child{text-align:left}"
-        "figure img{max-width:100%;border:1px solid #ddd}figcaption{color:#555;font-size:.9em}")
-
-
-def _to_html(blocks: list[tuple[str, Any]], root: Path, title: str) -> str:
-    e = html.escape
-    out = ["<!DOCTYPE html>", "<html lang=\"en\"><head><meta charset=\"utf-8\">",
-           f"<title>invbench portfolio: {e(title)}</title><style>{_CSS}</style></head><body>"]
-    for kind, val in blocks:
-        if kind in ("h1", "h2", "h3"):
-            out.append(f"<{kind}>{e(val)}</{kind}>")
-        elif kind == "p":
-            out.append(f"<p>{e(val)}</p>")
-        elif kind == "figure":
-            data = base64.b64encode((root / val[0]).read_bytes()).decode()
-            out.append(f"<figure><img src=\"data:image/png;base64,{data}\" alt=\"{e(val[1])}\">"
-                       f"<figcaption>{e(val[1])}</figcaption></figure>")
-        elif kind == "table":
-            head, rows = val
-            out.append("<table><thead><tr>" + "".join(f"<th>{e(h)}</th>" for h in head) + "</tr></thead><tbody>"
-                       + "".join("<tr>" + "".join(f"<td>{e(str(c))}</td>" for c in r) + "</tr>" for r in rows)
-                       + "</tbody></table>")
-    out.append("</body></html>")
-    return "\n".join(out)
