@@ -137,11 +137,13 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     if spec.discount == 1 and method in ("value_iteration", "policy_iteration"):
         raise SpecError(f"method: {method} is for the discounted criterion (discount < 1)")
     if spec.discount == 1 and method in ("auto", "rvi") and expected_iterations(spec) > RVI_MAX_ITER:
+        from invbench.envs.models.exact_space import eoq_room
+        cycle = max(spec.case_pack, eoq_room(spec), 1)
         raise BudgetError(
-            f"exact solve: an order of {spec.case_pack:,} units (case pack) or the fixed cost's batch lasts about "
-            f"{max(spec.case_pack, 1) / max(spec.demand.mean, 1e-12):,.0f} periods; relative value iteration would need "
-            f"about {expected_iterations(spec):,.0f} iterations, over its limit of {RVI_MAX_ITER:,} "
-            "(use simulation, or a smaller case pack)")
+            f"exact solve: with mean demand {spec.demand.mean:g} per period an order of {cycle:,} units (the "
+            f"case pack or the fixed cost's batch) lasts about {cycle / max(spec.demand.mean, 1e-12):,.0f} periods; "
+            f"relative value iteration would need about {expected_iterations(spec):,.0f} iterations, over its "
+            f"limit of {RVI_MAX_ITER:,} (use simulation, or a smaller case pack or fixed cost)")
     t0 = time.perf_counter()
     space = exact_space(spec, full_pipeline)
     # A model whose exact space has a certified method of its own (the serial chain's Clark-Scarf
