@@ -134,3 +134,24 @@ def test_single_slot_folder_without_slot_sizes_still_loads(tmp_path):
     write_json_atomic(tmp_path / "p" / "policy.json", meta)
     x = np.random.default_rng(0).integers(0, 8, size=(100, spec.state_dim))
     np.testing.assert_array_equal(load_policy(tmp_path / "p", spec).act(x), res.policy.act(x))
+
+
+def test_rollout_candidates_stay_small_and_heads_recover_the_joint_best():
+    from invbench.agents.rollout_slots import PRODUCT_CAP, candidates, head_values
+    from invbench.agents.scaling import Scaling
+    small = Scaling(1.0, 1.0, 0.0, 1.0, 1, 4, slot_sizes=((0, 1, 2, 3, 4), (0, 1, 2)))
+    cur = np.array([[1, 2], [4, 0]])
+    first = candidates(small, cur)
+    assert first.shape == (2, 15, 2)  # the whole product (15 <= 64)
+    q = np.random.default_rng(0).random((2, 15))
+    heads = head_values(small, first, q)
+    for n in range(2):  # brute force over the product: each head's argmin is the joint argmin's slot
+        best = first[n, q[n].argmin()]
+        assert [int(v[n].argmin()) for v in heads] == best.tolist()
+    big = Scaling(1.0, 1.0, 0.0, 1.0, 1, 9, slot_sizes=(tuple(range(10)),) * 3)
+    first = candidates(big, np.array([[2, 3, 4]]))
+    assert 10 ** 3 > PRODUCT_CAP and first.shape == (1, 30, 3)  # coordinate-wise: 10 + 10 + 10
+    for j in range(3):  # block j varies slot j only; the others keep the current orders
+        block = first[0, 10 * j:10 * (j + 1)]
+        assert block[:, j].tolist() == list(range(10))
+        assert all((block[:, i] == [2, 3, 4][i]).all() for i in range(3) if i != j)
