@@ -44,14 +44,17 @@ def build_learned(meta: Mapping[str, Any], arrays: Mapping[str, np.ndarray], sto
     import torch
 
     from .learned_policy import LearnedPolicy
-    from .network import PolicyNet, check_architecture, tensor_shapes
+    from .network import PolicyNet, check_architecture, head_widths, tensor_shapes
     from .scaling import Scaling
 
     arch = check_architecture(meta["architecture"])
     scaling = Scaling.from_dict(meta["scaling"])
-    if arch["inputs"] != stored.state_dim or arch["outputs"] != scaling.n_actions:
-        refuse(f"policy: architecture {arch['inputs']} -> {arch['outputs']} does not fit state length "
-               f"{stored.state_dim} and {scaling.n_actions} order sizes")
+    if arch["inputs"] != stored.state_dim or head_widths(arch) != scaling.slot_counts:
+        refuse(f"policy: architecture {arch['inputs']} -> {head_widths(arch)} does not fit state length "
+               f"{stored.state_dim} and {scaling.slot_counts} order sizes per slot")
+    slots = target.order_slots
+    if len(slots) != scaling.n_slots:
+        refuse(f"policy: places {scaling.n_slots} order(s) per period, the instance's model {len(slots)}")
     shapes = tensor_shapes(arch)
     if set(arrays) != set(shapes):
         refuse(f"policy: {WEIGHTS} tensors {sorted(arrays)} do not match the architecture {sorted(shapes)}")
@@ -61,8 +64,12 @@ def build_learned(meta: Mapping[str, Any], arrays: Mapping[str, np.ndarray], sto
             refuse(f"policy: tensor {name} has shape {tuple(a.shape)}, architecture needs {tuple(shape)}")
         if a.dtype.kind != "f" or not bool(np.isfinite(a).all()):
             refuse(f"policy: tensor {name} must hold finite floating-point numbers")
-    if scaling.max_order_units > target.order_cap_units:
+    if scaling.n_slots == 1 and scaling.max_order_units > target.order_cap_units:
         refuse(f"policy: orders up to {scaling.max_order_units} units exceed the instance's cap {target.order_cap_units}")
+    for j, (sizes, slot) in enumerate(zip(scaling.slot_sizes, slots)):
+        if not set(sizes) <= set(int(u) for u in slot.sizes_units):
+            refuse(f"policy: slot {j} ({slot.name}) orders sizes that are not legal for the instance "
+                   f"(up to {sizes[-1]} units, the instance's cap {slot.cap_units})")
     net = PolicyNet(arch, init=False)
     net.load_named_tensors({k: torch.from_numpy(np.array(v, dtype=np.float32)) for k, v in arrays.items()})
     return LearnedPolicy(target, scaling, net, agent=str(meta.get("agent", "")),

@@ -1,4 +1,5 @@
-"""A trained network as a first-class policy: `act(obs[B, n]) -> orders[B]` in units, greedy.
+"""A trained network as a first-class policy: `act(obs[B, n]) -> orders[B]` in units, greedy
+(orders [B, k] for a model with k order slots: one head per slot).
 
 Whatever trained it, the policy is a `PolicyNet` plus the instance's `Scaling`, so evaluators,
 the exact policy evaluation and the comparison with the optimum treat it like any other policy.
@@ -14,7 +15,7 @@ import torch
 from invbench.baselines.policy import PolicyBase
 from invbench.envs.spec import InstanceSpec
 
-from .network import PolicyNet
+from .network import PolicyNet, greedy, head_widths
 from .scaling import Scaling
 
 #: Rows per forward pass, so the exact evaluator can query every state without a memory spike.
@@ -35,17 +36,18 @@ class LearnedPolicy(PolicyBase):
         self.meta: dict[str, Any] = dict(meta or {})
 
     def action_index(self, obs: np.ndarray) -> np.ndarray:
-        """Index of the chosen order size for each row of `obs`."""
+        """Index of the chosen order size for each row of `obs` ([B, k] with k slots)."""
         obs = np.asarray(obs)
         if obs.ndim == 1:
             obs = obs.reshape(1, -1)
         if obs.shape[1] != self.spec.state_dim:
             raise ValueError(f"policy: observations must have {self.spec.state_dim} columns, got {obs.shape[1]}")
-        out = np.empty(obs.shape[0], dtype=np.int64)
+        heads = head_widths(self.net.arch)
+        out = np.empty((obs.shape[0],) if len(heads) == 1 else (obs.shape[0], len(heads)), dtype=np.int64)
         with torch.no_grad():
             for i in range(0, obs.shape[0], CHUNK):
                 x = torch.from_numpy(self.scaling.features(obs[i:i + CHUNK]))
-                out[i:i + CHUNK] = self.net(x).argmax(dim=1).numpy()
+                out[i:i + CHUNK] = greedy(self.net(x), heads).numpy()
         return out
 
     def act(self, obs: np.ndarray) -> np.ndarray:
@@ -54,8 +56,11 @@ class LearnedPolicy(PolicyBase):
         return self.scaling.orders(obs2, self.action_index(obs2))
 
     def params(self) -> dict[str, Any]:
-        return {"agent": self.agent, "hidden": list(self.net.arch["hidden"]),
-                "max_order_units": self.scaling.max_order_units}
+        d = {"agent": self.agent, "hidden": list(self.net.arch["hidden"]),
+             "max_order_units": self.scaling.max_order_units}
+        if self.scaling.n_slots > 1:
+            d["slot_max_units"] = [s[-1] for s in self.scaling.slot_sizes]
+        return d
 
     def describe(self) -> str:
         return f"learned({self.agent})" if self.agent else "learned"

@@ -2,7 +2,9 @@
 
 SB3's actor (PPO, A2C), its Q-network (DQN) and our own rollout classifier are all copied into
 this one shape, so the exchange format knows a single architecture: linear layers with one
-activation, the output a score per order size, the greedy action its argmax.
+activation, the output a score per order size, the greedy action its argmax. A model with
+several order slots gets one head per slot: the output is the slots' scores concatenated
+(`heads` lists each slot's width) and the greedy action is the argmax within each head.
 """
 from __future__ import annotations
 
@@ -17,10 +19,26 @@ ACTIVATIONS = {"tanh": nn.Tanh, "relu": nn.ReLU}
 
 
 def architecture(inputs: int, hidden: tuple[int, ...] | list[int], outputs: int, activation: str,
-                 head: str) -> dict[str, Any]:
-    """The JSON-able description from which `PolicyNet` is rebuilt."""
-    return {"type": "mlp", "inputs": int(inputs), "hidden": [int(h) for h in hidden], "outputs": int(outputs),
+                 head: str, heads: list[int] | None = None) -> dict[str, Any]:
+    """The JSON-able description from which `PolicyNet` is rebuilt; `heads` (widths of the
+    slots' heads, summing to `outputs`) only when there are several slots."""
+    arch = {"type": "mlp", "inputs": int(inputs), "hidden": [int(h) for h in hidden], "outputs": int(outputs),
             "activation": activation, "head": head}
+    if heads is not None and len(heads) > 1:
+        arch["heads"] = [int(h) for h in heads]
+    return arch
+
+
+def head_widths(arch: Mapping[str, Any]) -> list[int]:
+    """Width of each slot's head (one head of all outputs when `heads` is absent)."""
+    return list(arch.get("heads", [arch["outputs"]]))
+
+
+def greedy(scores: torch.Tensor, heads: list[int]) -> torch.Tensor:
+    """Argmax within each head: [B] for one head, [B, k] for k heads."""
+    if len(heads) == 1:
+        return scores.argmax(dim=1)
+    return torch.stack([part.argmax(dim=1) for part in torch.split(scores, heads, dim=1)], dim=1)
 
 
 def check_architecture(arch: Mapping[str, Any]) -> dict[str, Any]:
@@ -28,8 +46,9 @@ def check_architecture(arch: Mapping[str, Any]) -> dict[str, Any]:
     if not isinstance(arch, Mapping):
         raise SpecError("policy.json architecture: must be a table")
     want = {"type", "inputs", "hidden", "outputs", "activation", "head"}
-    if set(arch) != want:
-        raise SpecError(f"policy.json architecture: must have exactly the keys {', '.join(sorted(want))}")
+    if set(arch) - {"heads"} != want:
+        raise SpecError(f"policy.json architecture: must have exactly the keys {', '.join(sorted(want))} "
+                        "(and heads with several order slots)")
     if arch["type"] != "mlp":
         raise SpecError(f"policy.json architecture.type: must be 'mlp', got {arch['type']!r}")
     if arch["activation"] not in ACTIVATIONS:
@@ -39,6 +58,12 @@ def check_architecture(arch: Mapping[str, Any]) -> dict[str, Any]:
     sizes = [arch["inputs"], *arch["hidden"], arch["outputs"]] if isinstance(arch["hidden"], list) else None
     if sizes is None or not all(isinstance(s, int) and not isinstance(s, bool) and 1 <= s <= 100_000 for s in sizes):
         raise SpecError("policy.json architecture: layer sizes must be integers in [1, 100000]")
+    if "heads" in arch:
+        h = arch["heads"]
+        if (not isinstance(h, list) or not 2 <= len(h) <= 64
+                or not all(isinstance(w, int) and not isinstance(w, bool) and w >= 1 for w in h)
+                or sum(h) != arch["outputs"]):
+            raise SpecError("policy.json architecture.heads: must be 2 to 64 integers >= 1 summing to outputs")
     return dict(arch)
 
 
@@ -86,10 +111,11 @@ class PolicyNet(nn.Module):
                 layer.bias.copy_(tensors[f"linear{i}.bias"])
 
 
-def from_linears(layers: list[nn.Linear], activation: str, head: str) -> PolicyNet:
+def from_linears(layers: list[nn.Linear], activation: str, head: str,
+                 heads: list[int] | None = None) -> PolicyNet:
     """Copy a chain of linear layers (e.g. taken out of an SB3 policy) into a `PolicyNet`."""
     arch = architecture(layers[0].in_features, [l.out_features for l in layers[:-1]], layers[-1].out_features,
-                        activation, head)
+                        activation, head, heads)
     net = PolicyNet(arch, init=False)
     with torch.no_grad():
         for dst, src in zip(net.linears, layers):

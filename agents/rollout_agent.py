@@ -19,6 +19,11 @@ One iteration, top to bottom:
      the rollout noise of rare, costly stockouts (an argmin of noisy estimates is biased);
   4. the network is the next current policy; the best one on the CRN learning curve is kept.
 The first current policy is the best order-up-to rule on the inventory position (by CRN search).
+Models with several order slots (one network head per slot): the candidates per state are the
+product of the slots' sizes when it has at most 64 members, else coordinate-wise (one slot
+varied over its sizes, the others at the current policy's order); each head is fitted to its
+slot's values (see `rollout_slots.py`), and the first policy is the best "deficit rule" (every
+slot orders the position's shortfall below a level, by CRN search over the level).
 Every period of every path is one call of the model's step function on the whole batch.
 """
 from __future__ import annotations
@@ -123,13 +128,17 @@ def rollout_q(spec: InstanceSpec, act: Any, states: np.ndarray, sizes: np.ndarra
     """Q[N, K]: mean cost of ordering sizes[k] in state n, then following `act` for `horizon` periods.
 
     All K candidates of one state see the same `rollouts` demand paths (common random numbers).
+    `sizes` may instead be first orders [N, K, k] per state for a model with k order slots.
     """
     step = step_fn(spec)
-    N, K, M = len(states), len(sizes), rollouts
+    N, K, M = len(states), (len(sizes) if np.ndim(sizes) == 1 else sizes.shape[1]), rollouts
     u = rng.random((horizon + 1, N, 1, M))
     u = np.broadcast_to(u, (horizon + 1, N, K, M)).reshape(horizon + 1, N * K * M)
     state = np.repeat(states, K * M, axis=0)
-    order = np.tile(np.repeat(sizes, M), N)
+    if np.ndim(sizes) == 1:
+        order = np.tile(np.repeat(sizes, M), N)
+    else:
+        order = np.repeat(sizes.reshape(N * K, -1), M, axis=0)
     total = np.zeros(N * K * M)
     for t in range(horizon + 1):
         if t > 0:
@@ -190,6 +199,9 @@ def run_rollout_agent(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, 
     torch.manual_seed(seed)
     sizes = scaling.order_sizes_units
     horizon = 8 * (spec.lead_time + 1) + 16 if s.horizon == AUTO else int(s.horizon)
+    if scaling.n_slots > 1:
+        horizon = 8 * (spec.state_dim + 1) + 16 if s.horizon == AUTO else int(s.horizon)
+        return _run_slots(spec, s, scaling, steps, seed, monitor, rng, gen, horizon)
     _, act = best_order_up_to(spec, scaling.max_order_units, seed)
 
     def act_index(states: np.ndarray) -> np.ndarray:
@@ -230,3 +242,57 @@ def _copy(net: PolicyNet, arch: dict[str, Any]) -> PolicyNet:
     out = PolicyNet(arch, init=False)
     out.load_state_dict(net.state_dict())
     return out.eval()
+
+
+def _run_slots(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, steps: int, seed: int, monitor: Any,
+               rng: np.random.Generator, gen: torch.Generator, horizon: int) -> tuple[LearnedPolicy, int]:
+    """The loop above for a model with several order slots (one head per slot)."""
+    from .rollout_slots import best_deficit_rule, candidates, head_values, to_index
+    _, act = best_deficit_rule(spec, scaling, seed)
+    head = "logits" if s.fit == "classify" else "q_values"
+    arch = architecture(spec.state_dim, s.hidden, scaling.n_outputs, s.activation, head, scaling.slot_counts)
+    net = PolicyNet(arch)
+    policy: LearnedPolicy | None = None
+    done = 0
+    for it in range(s.iterations):
+        states, n = sample_states(spec, act, s, rng)
+        current = act_unique(act, states).reshape(len(states), scaling.n_slots)
+        first = candidates(scaling, current)
+        q = rollout_q(spec, act, states, first, s.rollouts, horizon, rng)
+        done += n + q.size * s.rollouts * (horizon + 1)
+        values = head_values(scaling, first, q)
+        cur = to_index(scaling, current)
+        if not s.warm_start:
+            net = PolicyNet(arch)
+        x = scaling.features(states)
+        if s.fit == "classify":
+            labels = np.column_stack([v.argmin(axis=1) for v in values]).astype(np.int64)
+            acc = _fit_heads_classifier(net, x, labels, scaling.slot_counts, s, gen)
+        else:
+            here = values[0][np.arange(len(states)), cur[:, 0]][:, None]
+            adv = np.concatenate([(v - here) / scaling.reward_scale for v in values], axis=1)
+            acc = fit_regressor(net, x, adv, np.ones_like(adv, dtype=bool), s, gen)
+        policy = LearnedPolicy(spec, scaling, _copy(net, arch), agent="rollout",
+                               meta={"iteration": it + 1, "train_accuracy": acc})
+        act = policy.act
+        monitor.advance(done, lambda p=policy: p, force=True)
+        if done >= steps or monitor.out_of_time():
+            break
+    assert policy is not None
+    return policy, done
+
+
+def _fit_heads_classifier(net: PolicyNet, x: np.ndarray, y: np.ndarray, heads: list[int], s: RolloutSettings,
+                          gen: torch.Generator) -> float:
+    """Cross-entropy summed over the heads; returns the share of (state, slot) labels matched."""
+    loss_fn = nn.CrossEntropyLoss()
+    X, Y = torch.from_numpy(x), torch.from_numpy(y)
+
+    def loss(idx: torch.Tensor) -> torch.Tensor:
+        parts = torch.split(net(X[idx]), heads, dim=1)
+        return sum(loss_fn(p, Y[idx, j]) for j, p in enumerate(parts))  # type: ignore[return-value]
+
+    _train_epochs(net, len(X), loss, s, gen)
+    with torch.no_grad():
+        pred = torch.stack([p.argmax(dim=1) for p in torch.split(net(X), heads, dim=1)], dim=1)
+        return float((pred == Y).float().mean())

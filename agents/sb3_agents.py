@@ -2,6 +2,9 @@
 
 PPO and A2C act by the argmax of the actor's logits, DQN by the argmax of its Q-values; either
 chain of linear layers is copied into a `PolicyNet` so the export never depends on SB3's files.
+With several order slots PPO and A2C act on a `MultiDiscrete` space: SB3's action net then
+emits the slots' logits concatenated, which is exactly our one-head-per-slot layout. DQN acts
+on `Discrete` spaces only, so it is refused for such models before anything is built.
 """
 from __future__ import annotations
 
@@ -9,6 +12,7 @@ from typing import Any
 
 from torch import nn
 
+from invbench.envs.errors import SpecError
 from invbench.envs.spec import InstanceSpec
 
 from .learned_policy import LearnedPolicy
@@ -18,10 +22,23 @@ from .settings import SB3Settings
 from .vec_env import InventorySB3VecEnv
 
 
+#: agents that handle one order slot only, with the reason given when refused
+SINGLE_SLOT_ONLY = {"dqn": "stable-baselines3's DQN supports Discrete action spaces only, not MultiDiscrete"}
+
+
+def check_agent_fits(agent: str, spec: InstanceSpec) -> None:
+    """Refuse an agent that cannot act on the model's order slots, before any work."""
+    k = len(spec.order_slots)
+    if k > 1 and agent in SINGLE_SLOT_ONLY:
+        raise SpecError(f"agent: {agent} cannot train on the {spec.model} model, which places {k} orders per "
+                        f"period ({SINGLE_SLOT_ONLY[agent]}); use ppo, a2c or rollout")
+
+
 def make_model(agent: str, spec: InstanceSpec, settings: SB3Settings, scaling: Scaling, seed: int) -> Any:
     """An SB3 model of `agent` on the batch simulator, seeded, CPU only."""
     from stable_baselines3 import A2C, DQN, PPO
 
+    check_agent_fits(agent, spec)
     env = InventorySB3VecEnv(spec, int(settings.n_envs), scaling, episode_length=settings.episode_length, seed=seed)
     act_fn = ACTIVATIONS[settings.activation]
     hidden = list(settings.hidden)
@@ -60,6 +77,6 @@ def extract_policy(model: Any, agent: str, spec: InstanceSpec, settings: SB3Sett
     else:
         layers = _linears(pol.q_net.q_net)
         head = "q_values"
-    net = from_linears(layers, settings.activation, head)
+    net = from_linears(layers, settings.activation, head, scaling.slot_counts)
     return LearnedPolicy(spec, scaling, net, agent=agent)
 

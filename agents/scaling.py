@@ -5,6 +5,10 @@ any size), rewards are `-(cost - reward_offset) / reward_scale` (a reference cos
 unit keeps value targets near zero), and actions index the order sizes 0, q, 2q, ... up to an
 order bound taken from a high demand quantile (orders beyond it are never needed in steady state),
 and orders never lift the inventory position above a cap derived from the instance.
+
+Models that place several orders per period (one per supplier or stage) get one head per order
+slot: slot j's actions index its own legal sizes up to its own bound (the slot's cap from the
+model), and there is no position cap (its meaning differs per model).
 """
 from __future__ import annotations
 
@@ -32,14 +36,40 @@ class Scaling:
     max_order_units: int
     obs_clip: float = 0.0  # features clipped to [-obs_clip, obs_clip]; 0 = no clipping
     position_cap: int = 0  # orders never lift the inventory position above this; 0 = no cap
+    #: legal sizes (units) of each order slot the network has a head for; empty = one slot of
+    #: 0, q, ..., max_order_units (what files written before several slots existed mean)
+    slot_sizes: tuple[tuple[int, ...], ...] = ()
+
+    def __post_init__(self) -> None:
+        if not self.slot_sizes:
+            one = tuple(range(0, self.max_order_units + 1, max(self.case_pack, 1)))
+            object.__setattr__(self, "slot_sizes", (one,))
+        else:
+            object.__setattr__(self, "slot_sizes", tuple(tuple(int(u) for u in s) for s in self.slot_sizes))
+
+    @property
+    def n_slots(self) -> int:
+        return len(self.slot_sizes)
+
+    @property
+    def slot_counts(self) -> list[int]:
+        """Number of actions (network outputs) of each slot's head."""
+        return [len(s) for s in self.slot_sizes]
+
+    @property
+    def n_outputs(self) -> int:
+        return sum(self.slot_counts)
 
     @property
     def n_actions(self) -> int:
-        return self.max_order_units // self.case_pack + 1
+        return len(self.slot_sizes[0])
 
     @property
     def order_sizes_units(self) -> np.ndarray:
-        return np.arange(self.n_actions, dtype=np.int64) * self.case_pack
+        return np.asarray(self.slot_sizes[0], dtype=np.int64)
+
+    def slot_units(self, j: int) -> np.ndarray:
+        return np.asarray(self.slot_sizes[j], dtype=np.int64)
 
     def features(self, obs: np.ndarray) -> np.ndarray:
         x = np.asarray(obs, dtype=np.float32) / np.float32(self.obs_scale) - np.float32(self.obs_shift)
@@ -48,7 +78,13 @@ class Scaling:
         return x.astype(np.float32)
 
     def orders(self, states: np.ndarray, index: np.ndarray) -> np.ndarray:
-        """Units ordered for action indices in raw states, after the position cap (if any)."""
+        """Units ordered for action indices in raw states, after the position cap (if any).
+
+        One slot: index [B] -> units [B]; k slots: index [B, k] -> units [B, k].
+        """
+        if self.n_slots > 1:
+            idx = np.asarray(index, dtype=np.int64).reshape(-1, self.n_slots)
+            return np.column_stack([self.slot_units(j)[idx[:, j]] for j in range(self.n_slots)])
         units = self.order_sizes_units[np.asarray(index, dtype=np.int64)]
         if self.position_cap > 0:
             room = np.maximum(self.position_cap - np.asarray(states).sum(axis=1).astype(np.int64), 0)
@@ -59,25 +95,53 @@ class Scaling:
         return -(np.asarray(cost, dtype=np.float64) - self.reward_offset) / self.reward_scale
 
     def to_dict(self) -> dict[str, Any]:
-        return asdict(self)
+        d = asdict(self)
+        d["slot_sizes"] = [list(s) for s in self.slot_sizes]
+        return d
 
     @classmethod
     def from_dict(cls, d: Mapping[str, Any]) -> "Scaling":
         want = {"obs_scale", "obs_shift", "reward_offset", "reward_scale", "case_pack", "max_order_units", "obs_clip",
                 "position_cap"}
-        if not isinstance(d, Mapping) or set(d) != want:
-            raise SpecError(f"policy.json scaling: must have exactly the keys {', '.join(sorted(want))}")
+        # slot_sizes is optional: files from before several order slots have one slot implied
+        if not isinstance(d, Mapping) or set(d) - {"slot_sizes"} != want:
+            raise SpecError(f"policy.json scaling: must have exactly the keys {', '.join(sorted(want))} "
+                            "(and optionally slot_sizes)")
+        slots = _read_slot_sizes(d.get("slot_sizes"))
         try:
             out = cls(obs_scale=float(d["obs_scale"]), obs_shift=float(d["obs_shift"]),
                       reward_offset=float(d["reward_offset"]), reward_scale=float(d["reward_scale"]),
                       case_pack=int(d["case_pack"]), max_order_units=int(d["max_order_units"]),
-                      obs_clip=float(d["obs_clip"]), position_cap=int(d["position_cap"]))
+                      obs_clip=float(d["obs_clip"]), position_cap=int(d["position_cap"]), slot_sizes=slots)
         except (TypeError, ValueError):
             raise SpecError("policy.json scaling: values must be numbers") from None
         if not (np.isfinite(out.obs_scale) and out.obs_scale > 0 and out.case_pack >= 1 and out.obs_clip >= 0 and out.position_cap >= 0
                 and out.max_order_units >= out.case_pack and out.max_order_units % out.case_pack == 0):
             raise SpecError("policy.json scaling: obs_scale must be > 0 and max_order_units a positive case-pack multiple")
+        if out.n_slots == 1 and out.slot_sizes[0] != tuple(range(0, out.max_order_units + 1, out.case_pack)):
+            raise SpecError("policy.json scaling.slot_sizes: one slot must hold 0, case_pack, ..., max_order_units")
+        if out.n_slots > 1 and (out.position_cap != 0 or out.max_order_units != max(s[-1] for s in out.slot_sizes)):
+            raise SpecError("policy.json scaling: with several slots position_cap must be 0 and max_order_units "
+                            "the largest size of any slot")
         return out
+
+
+def _read_slot_sizes(raw: Any) -> tuple[tuple[int, ...], ...]:
+    """slot_sizes from a file: lists of ascending non-negative integers starting at 0."""
+    if raw is None:
+        return ()
+    bad = SpecError("policy.json scaling.slot_sizes: must be 1 to 64 lists, each of ascending integers >= 0 "
+                    "starting at 0")
+    if not isinstance(raw, list) or not 1 <= len(raw) <= 64:
+        raise bad
+    out = []
+    for sizes in raw:
+        if (not isinstance(sizes, list) or not sizes or sizes[0] != 0
+                or not all(isinstance(u, int) and not isinstance(u, bool) for u in sizes)
+                or any(b <= a for a, b in zip(sizes, sizes[1:]))):
+            raise bad
+        out.append(tuple(sizes))
+    return tuple(out)
 
 
 def demand_quantile(spec: InstanceSpec, q: float, periods: int = 1) -> int:
@@ -117,11 +181,55 @@ def position_cap_for(spec: InstanceSpec) -> int:
     return int(level + int(np.ceil(2 * sd)) + spec.case_pack)
 
 
-def reference_cost(spec: InstanceSpec, max_units: int, seed: int = 0) -> float:
+def slot_bounds(spec: InstanceSpec, settings: CommonSettings) -> list[tuple[int, ...]]:
+    """Sizes of each slot of a model with several slots: the slot's own legal sizes, up to
+    `agent.max_order_units` when that is set (the automatic bound is the slot's cap)."""
+    out = []
+    for slot in spec.order_slots:
+        sizes = [int(u) for u in slot.sizes_units]
+        if settings.max_order_units != AUTO:
+            units = int(settings.max_order_units)
+            if units > max(s.cap_units for s in spec.order_slots):
+                raise SpecError(f"agent.max_order_units: must be <= the largest order cap of the instance's slots "
+                                f"{max(s.cap_units for s in spec.order_slots)}, got {units}")
+            sizes = [u for u in sizes if u <= units]
+        out.append(tuple(sizes))
+    return out
+
+
+def deficit_rule(spec: InstanceSpec, level: int, slots: list[tuple[int, ...]] | tuple[tuple[int, ...], ...]) -> Any:
+    """A crude rule for several slots: every slot orders the shortfall of the inventory position
+    below `level` (rounded down to a legal size). With one supplier per slot it over-orders for
+    a period; in a serial chain it passes each period's demand up the chain (common practice)."""
+    model = spec.model_def
+    arrays = [np.asarray(s, dtype=np.int64) for s in slots]
+
+    def act(states: np.ndarray) -> np.ndarray:
+        want = np.maximum(level - model.position(spec, states), 0).astype(np.int64)
+        cols = [a[np.clip(np.searchsorted(a, want, side="right") - 1, 0, len(a) - 1)] for a in arrays]
+        return np.column_stack(cols)
+    return act
+
+
+def deficit_level(spec: InstanceSpec) -> int:
+    """Level of the deficit rule: critical-fractile quantile of demand over the periods the
+    state spans (the model's lead times), plus one."""
+    h, p = spec.model_def.carrying_cost(spec), spec.shortage_cost
+    ratio = p / (p + h) if p + h > 0 else 0.5
+    return demand_quantile(spec, min(max(ratio, 0.5), 0.999), spec.state_dim + 1)
+
+
+def reference_cost(spec: InstanceSpec, max_units: int, seed: int = 0,
+                   slots: tuple[tuple[int, ...], ...] = ()) -> float:
     """Cost of a rough order-up-to rule (critical-ratio quantile of lead-time demand), by CRN.
 
     Only a unit and an offset for rewards, so a crude rule is enough; it never enters results.
+    With several slots (`slots` given) the deficit rule stands in for it.
     """
+    if len(slots) > 1:
+        act_k = deficit_rule(spec, deficit_level(spec), slots)
+        est = simulate(spec, act_k, replications=16, periods=400, warmup=50, seed=seed)
+        return max(est.cost, 1e-6)
     h, p = spec.holding_cost, spec.shortage_cost
     ratio = p / (p + h) if p + h > 0 else 0.5
     level = demand_quantile(spec, min(max(ratio, 0.5), 0.999), spec.lead_time + 1)
@@ -137,6 +245,8 @@ def reference_cost(spec: InstanceSpec, max_units: int, seed: int = 0) -> float:
 
 def scaling_for(spec: InstanceSpec, settings: CommonSettings) -> Scaling:
     """Resolve every `auto` scaling setting from the instance."""
+    if len(spec.order_slots) > 1:
+        return _multi_scaling(spec, settings)
     units = order_bound(spec, settings)
     obs_scale = float(spec.demand.mean) if settings.obs_scale == AUTO else float(settings.obs_scale)
     obs_scale = max(obs_scale, 1e-6)
@@ -150,3 +260,20 @@ def scaling_for(spec: InstanceSpec, settings: CommonSettings) -> Scaling:
     offset = ref if settings.reward_offset == AUTO else float(settings.reward_offset)
     return Scaling(obs_scale=obs_scale, obs_shift=1.0, reward_offset=float(offset), reward_scale=float(scale),
                    case_pack=spec.case_pack, max_order_units=units, obs_clip=float(settings.obs_clip), position_cap=cap)
+
+
+def _multi_scaling(spec: InstanceSpec, settings: CommonSettings) -> Scaling:
+    """Scaling of a model with several order slots: one head per slot, no position cap."""
+    if settings.position_cap not in (AUTO, 0):
+        raise SpecError(f"agent.position_cap: must be auto or 0 for the {spec.model} model (it places "
+                        f"{len(spec.order_slots)} orders per period), got {settings.position_cap}")
+    slots = tuple(slot_bounds(spec, settings))
+    obs_scale = float(spec.demand.mean) if settings.obs_scale == AUTO else float(settings.obs_scale)
+    obs_scale = max(obs_scale, 1e-6)
+    need_ref = settings.reward_scale == AUTO or settings.reward_offset == AUTO
+    ref = reference_cost(spec, 0, slots=slots) if need_ref else 1.0
+    scale = ref if settings.reward_scale == AUTO else float(settings.reward_scale)
+    offset = ref if settings.reward_offset == AUTO else float(settings.reward_offset)
+    return Scaling(obs_scale=obs_scale, obs_shift=1.0, reward_offset=float(offset), reward_scale=float(scale),
+                   case_pack=spec.case_pack, max_order_units=max(s[-1] for s in slots),
+                   obs_clip=float(settings.obs_clip), position_cap=0, slot_sizes=slots)

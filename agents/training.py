@@ -113,6 +113,8 @@ def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, ou
     spec = load_spec(spec)
     steps, seed = _check_run(steps, seed, max_cpu_seconds, select_best)
     s = resolve_settings(agent, settings)
+    from .sb3_agents import check_agent_fits
+    check_agent_fits(agent, spec)
     _check_curve_budget(spec, s)
     if out is not None and not isinstance(out, (str, Path)):
         raise SpecError(f"out: must be a directory path or None, got {type(out).__name__}")

@@ -4,7 +4,8 @@ It adapts `invbench.envs.vector_env.InventoryVectorEnv` (which calls the model's
 function) and only adds SB3's conventions: scaled observations and rewards, `dones` plus
 `terminal_observation` / `TimeLimit.truncated` at the time limit, and `episode` statistics.
 With `scaling=None` it passes raw states and minus the cost, which is what the equivalence
-check against the single env uses.
+check against the single env uses. A model with several order slots gets a `MultiDiscrete`
+action space, one index per slot into that slot's sizes (as the Gymnasium env does).
 """
 from __future__ import annotations
 
@@ -23,7 +24,7 @@ from .scaling import Scaling
 
 
 class InventorySB3VecEnv(VecEnv):
-    """`num_envs` copies of one instance; action i orders `i * case_pack` units."""
+    """`num_envs` copies of one instance; action i orders the i-th legal size (per slot)."""
 
     def __init__(self, spec: InstanceSpec, num_envs: int, scaling: Scaling | None = None,
                  episode_length: int = 500, seed: int | None = None) -> None:
@@ -32,22 +33,27 @@ class InventorySB3VecEnv(VecEnv):
         self.spec_ = self.inner.spec_
         self.scaling = scaling
         n = self.spec_.state_dim
+        legal = [len(slot.sizes_units) for slot in self.spec_.order_slots]
         if scaling is None:
             obs_space = self.inner.single_observation_space
-            n_actions = len(self.inner.order_sizes_units)
+            counts = legal
         else:
             bound = OBS_LIMIT / scaling.obs_scale
             obs_space = spaces.Box(-bound, bound, (n,), np.float32)
-            n_actions = scaling.n_actions
-            if n_actions > len(self.inner.order_sizes_units):
+            counts = scaling.slot_counts
+            if len(counts) != len(legal) or any(c > m for c, m in zip(counts, legal)):
                 raise ValueError("scaling: more actions than the instance's legal orders")
+        self.k = len(counts)
+        action_space = spaces.Discrete(counts[0]) if self.k == 1 else spaces.MultiDiscrete(counts)
+        # the scaling's sizes of a slot are a prefix of its legal sizes: same index, same units
+        self._nvec = np.asarray(counts, dtype=np.int64)
         self._pending: np.ndarray | None = None
         self._raw = np.zeros((num_envs, n), dtype=np.float32)
         self._ep_reward = np.zeros(num_envs)
         self._ep_cost = np.zeros(num_envs)
         self._ep_len = 0
         self._t0 = time.perf_counter()
-        super().__init__(num_envs, obs_space, spaces.Discrete(n_actions))
+        super().__init__(num_envs, obs_space, action_space)
         if seed is not None:
             self.seed(seed)
 
@@ -72,14 +78,15 @@ class InventorySB3VecEnv(VecEnv):
         return self._obs(raw)
 
     def step_async(self, actions: np.ndarray) -> None:
-        self._pending = np.asarray(actions, dtype=np.int64).reshape(self.num_envs)
+        shape = (self.num_envs,) if self.k == 1 else (self.num_envs, self.k)
+        self._pending = np.asarray(actions, dtype=np.int64).reshape(shape)
 
     def step_wait(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[dict[str, Any]]]:
         actions, self._pending = self._pending, None
         if actions is None:
             raise RuntimeError("step_wait called without step_async")
-        if actions.min() < 0 or actions.max() >= self.action_space.n:
-            raise ValueError(f"actions: must be integers in [0, {self.action_space.n - 1}]")
+        if actions.min() < 0 or np.any(actions.reshape(self.num_envs, self.k) >= self._nvec):
+            raise ValueError(f"actions: must be integers in {', '.join(f'[0, {c - 1}]' for c in self._nvec)}")
         if self.scaling is not None and self.scaling.position_cap > 0:
             # the cap is part of the action's meaning: same rule as LearnedPolicy.act
             actions = self.scaling.orders(self._raw, actions) // self.scaling.case_pack
