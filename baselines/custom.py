@@ -113,9 +113,16 @@ def _import(ref: str, path: Path, folder: Path) -> Any:
             spec.loader.exec_module(mod)  # type: ignore[union-attr]
             return mod
         old = sys.modules.get(target)
-        if old is not None and getattr(old, "__file__", None) and Path(old.__file__).resolve() == path:
+        old_file = getattr(old, "__file__", None)
+        if old is not None and old_file and Path(old_file).resolve() == path:
             return importlib.reload(old)  # the file changed since it was imported here
-        return importlib.import_module(target)
+        if old is not None and "." not in target:
+            del sys.modules[target]  # a namesake from another suite's folder: import this one
+        mod = importlib.import_module(target)
+        if not getattr(mod, "__file__", None) or Path(mod.__file__).resolve() != path:
+            raise SpecError(f"function: module {target!r} is already imported from {mod.__file__}, not "
+                            f"{path}; name the file instead (\"{path}:{ref.rpartition(':')[2]}\")")
+        return mod
     except SpecError:
         raise
     except BaseException as e:  # a broken user module: one line, never a traceback
@@ -160,8 +167,9 @@ def build(fn: Callable[..., Any], ref: str, spec: InstanceSpec, params: Mapping[
     except SpecError as e:
         raise SpecError(f"function: {ref!r} refused params {dict(params)!r}: {_first(e)}") from None
     except Exception as e:
+        # chained, so a failed cell's stored traceback shows where the user's code broke
         raise SpecError(f"function: {ref!r} raised {type(e).__name__}: {_first(e)} (with params "
-                        f"{dict(params)!r})") from None
+                        f"{dict(params)!r})") from e
     if callable(getattr(got, "act", None)):
         return got
     if measurement_ok and (isinstance(got, Mapping) or hasattr(got, "to_dict")):

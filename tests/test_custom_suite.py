@@ -98,3 +98,18 @@ def test_search_in_a_suite_without_params(suite_dir, tmp_path):
     # Reference: the built-in base_stock's own optimisation (outside the custom-policy code).
     assert table.loc["mine", "params"] == table.loc["base_stock", "params"] == '{"S": 15}'
     assert table.loc["mine", "cost"] == pytest.approx(table.loc["base_stock", "cost"], rel=1e-12)
+
+
+def test_two_suites_with_namesake_modules_each_get_their_own(tmp_path, monkeypatch):
+    monkeypatch.setattr(sys, "path", [p for p in sys.path if p not in ("", ".")])
+    costs = []
+    for S in (10, 14):
+        d = tmp_path / f"s{S}"
+        d.mkdir()
+        (d / "my_policy.py").write_text(readme_example().replace('int(params["S"])', str(S)))
+        (d / "s.toml").write_text(SUITE.format(function="my_policy:order_up_to"))
+        res = run_bench(load_suite(d / "s.toml"), d / "out", workers=1, progress=False)
+        assert not res.failed
+        costs.append(res.table.set_index("policy").loc["mine", "cost"])
+    sys.modules.pop("my_policy", None)
+    assert costs[0] != pytest.approx(costs[1], rel=1e-9)
