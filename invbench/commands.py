@@ -144,6 +144,9 @@ def _evaluate(args: argparse.Namespace) -> int:
     from invbench.experiments.simulate import check_simulation_budget
     spec = load_spec(check_spec_file(args.spec))
     params = _parse_params(args.param)
+    if args.save and custom_reference(args.policy) and not Path(args.policy).exists():
+        raise SpecError("--save: a policy of your own (module:callable) is not saved; keep its file, "
+                        "or save a classical or solved policy")
     if args.save:  # before the policy is optimised
         from invbench.baselines.artifact_io import check_save_dir
         check_save_dir(args.save, "--save")

@@ -87,3 +87,10 @@ def test_bad_custom_policy_is_one_line_exit_2(folder, capsys, ref, source, expec
     out, err = capsys.readouterr()
     assert err.count("\n") == 1 and err.startswith("invbench: error: --policy"), err
     assert expected in err and "Traceback" not in err
+
+
+def test_save_of_a_custom_policy_is_refused_before_any_work(folder, capsys):
+    assert main(["evaluate", "inst.toml", "--policy", "my_policy:order_up_to", "--save", "kept"]) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and err.count("\n") == 1 and "--save" in err
+    assert not (folder / "kept").exists()
