@@ -47,17 +47,41 @@ def source_file(ref: str, folder: str | Path) -> Path:
             raise SpecError(f"function: file {str(path)!r} does not exist (expected a Python file "
                             f"defining the policy factory)")
         return path.resolve()
-    search: list[str] | None = [str(Path(folder).resolve()), *sys.path]
-    spec = None
-    for part in target.split("."):
-        spec = importlib.machinery.PathFinder.find_spec(part, search)
-        if spec is None:
-            raise SpecError(f"function: module {target!r} not found in {Path(folder).resolve()} or on "
-                            f"sys.path (expected {target.replace('.', '/')}.py there)")
-        search = list(spec.submodule_search_locations or [])
+    parts = target.split(".")
+    spec = importlib.machinery.PathFinder.find_spec(parts[0], [str(Path(folder).resolve())])
+    if spec is not None:  # the folder first: a suite's own module wins over an installed namesake
+        for part in parts[1:]:
+            spec = importlib.machinery.PathFinder.find_spec(part, list(spec.submodule_search_locations or []))
+            if spec is None:
+                break
+    if spec is None:  # installed modules, also those only an import hook knows (editable installs)
+        spec = _installed(parts)
+    if spec is None:
+        raise SpecError(f"function: module {target!r} not found in {Path(folder).resolve()} or among the "
+                        f"installed modules (expected {target.replace('.', '/')}.py there)")
     if spec is None or not spec.origin or not Path(spec.origin).is_file():
         raise SpecError(f"function: module {target!r} has no Python source file")
     return Path(spec.origin).resolve()
+
+
+def _installed(parts: list[str]) -> Any:
+    """Spec of an installed module by asking the import finders directly: unlike
+    importlib.util.find_spec this ignores modules already imported (perhaps from another folder)."""
+    spec, path = None, None
+    for i in range(len(parts)):
+        name = ".".join(parts[: i + 1])
+        for finder in sys.meta_path:
+            find = getattr(finder, "find_spec", None)
+            try:
+                spec = find(name, path) if find else None
+            except Exception:  # a finder that cannot answer for this name
+                spec = None
+            if spec is not None:
+                break
+        if spec is None:
+            return None
+        path = list(spec.submodule_search_locations or [])
+    return spec
 
 
 def digest(path: Path) -> str:
