@@ -121,29 +121,33 @@ def _agent_cell(spec: InstanceSpec, payload: dict[str, Any]) -> dict[str, Any]:
 
 
 def _custom_cell(spec: InstanceSpec, payload: dict[str, Any]) -> dict[str, Any]:
-    """A user's `module:callable(spec, params=..., seed=..., evaluation=...)`.
+    """A user's `module:callable(spec, params=..., seed=..., evaluation=...)` (see baselines/custom.py).
 
     It returns either a policy (anything with `act`), which is then measured like any other,
     or a finished measurement (a mapping or an object with `to_dict()`) holding at least `cost`.
+    Without params, a factory declaring `parameters` is optimised by exact evaluation first.
     """
+    from invbench.baselines import custom
+
     pol = payload["policy"]
-    mod_name, _, attr = pol["function"].partition(":")
-    try:
-        fn = getattr(importlib.import_module(mod_name), attr)
-    except (ImportError, AttributeError) as e:
-        raise CellUnavailable(f"custom cell: cannot import {pol['function']!r} ({e})") from None
-    got = fn(spec, params=dict(pol.get("params") or {}), seed=int(payload["seed"]),
-             evaluation=dict(payload.get("evaluation") or {}))
+    ref, seed = pol["function"], int(payload["seed"])
+    evaluation = dict(payload.get("evaluation") or {})
+    fn = custom.load_factory(ref, pol.get("folder") or Path.cwd())
+    params = dict(pol.get("params") or {})
+    if not params and custom.parameters(fn, ref):
+        got, params = custom.optimise(fn, ref, spec, seed, evaluation)
+    else:
+        got = custom.build(fn, ref, spec, params, seed, evaluation, measurement_ok=True)
     if hasattr(got, "act"):
         out = evaluate_policy(spec, got, payload)
-        out["params"] = policy_params(got, pol.get("params"))
+        out["params"] = policy_params(got, params)
         out["extras"] = {"policy_map": policy_map(spec, got)}
         return out
     d = got.to_dict() if hasattr(got, "to_dict") else dict(got)
     if "cost" not in d:
-        raise ValueError(f"custom cell: {pol['function']} returned no 'cost'")
+        raise ValueError(f"function: {ref} returned a measurement without 'cost'")
     out = {k: d.get(k) for k in ("cost", "ci_halfwidth", "method", *spec.model_def.cost_parts)}
-    out["params"] = d.get("params", dict(pol.get("params") or {}))
+    out["params"] = d.get("params", params)
     out["extras"] = {k: d[k] for k in ("policy_map", "learning_curve") if k in d}
     return out
 

@@ -113,6 +113,17 @@ class ResultStore:
         for stray in self.root.glob(".results.*.tmp"):
             stray.unlink(missing_ok=True)
         atomic_write(suite_file, suite.to_toml())
+        self._drop_superseded_failures(suite)
+
+    def _drop_superseded_failures(self, suite: Suite) -> None:
+        """Remove failure records of cells whose code or settings changed since (new cell id,
+        same instance, policy label and seed): they are rerun and the old failure no longer shows."""
+        cells = suite.cells()
+        ids = {c.cell_id for c in cells}
+        slots = {(c.instance_name, c.policy.label, c.seed) for c in cells}
+        for cid, rec in self._scan(self.failed_dir).items():
+            if cid not in ids and (rec.get("instance"), rec.get("policy"), rec.get("seed")) in slots:
+                (self.failed_dir / f"{cid}.json").unlink(missing_ok=True)
 
     def suite(self) -> Suite:
         f = self.root / "suite.toml"

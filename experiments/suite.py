@@ -32,7 +32,7 @@ _ANY_KIND = ("kind", "label", "seeds", "evaluation", "models")
 KIND_KEYS = {"optimum": ("name", *_ANY_KIND),
              "classical": ("name", "params", *_ANY_KIND),
              "agent": ("agent", "steps", "settings", "cpu_seconds", *_ANY_KIND),
-             "custom": ("function", "name", "params", *_ANY_KIND)}
+             "custom": ("function", "name", "params", "folder", "source_digest", *_ANY_KIND)}
 POLICY_KEYS = tuple(dict.fromkeys(k for keys in KIND_KEYS.values() for k in keys))
 INSTANCE_EXTRA_KEYS = ("file", "vary")
 #: Most instances one `vary` grid may expand to.
@@ -55,10 +55,12 @@ class PolicyEntry:
     evaluation: Mapping[str, Any] = field(default_factory=dict)
     models: tuple[str, ...] = ()  # empty: every instance; else only instances of these models
     cpu_seconds: float = 0.0  # agents: stop training once a cell has used this much CPU (0: no cap)
+    folder: str = ""  # custom: the folder its module is imported from
+    source_digest: str = ""  # custom: digest of its source file, so an edit reruns its cells
 
     def to_dict(self) -> dict[str, Any]:
         d: dict[str, Any] = {"kind": self.kind, "label": self.label}
-        for key in ("name", "agent", "function"):
+        for key in ("name", "agent", "function", "folder", "source_digest"):
             if getattr(self, key):
                 d[key] = getattr(self, key)
         if self.params is not None:
@@ -111,6 +113,7 @@ def _semantic(p: PolicyEntry) -> dict[str, Any]:
     d.pop("label", None)
     d.pop("seeds", None)
     d.pop("models", None)
+    d.pop("folder", None)  # moving the suite's folder does not change the code (its digest stays)
     return d
 
 
@@ -214,7 +217,7 @@ def _suite_from_dict(data: Mapping[str, Any], base_dir: Path | None, source: str
         raise SpecError(f"suite.invented: must be true or false, got {check.short(invented)}")
     evaluation = check.evaluation(data.get("evaluation", {}), "evaluation")
     instances = _instances(data.get("instances"), base_dir or Path.cwd())
-    policies = _policies(data.get("policies"), seeds, instances)
+    policies = _policies(data.get("policies"), seeds, instances, base_dir or Path.cwd())
     return Suite(name, desc, instances, policies, evaluation, sweep, invented, source)
 
 
@@ -309,17 +312,18 @@ def _check_unique(items: list[Any], message: str) -> None:
         seen.add(item.label)
 
 
-def _policies(v: Any, default_seeds: tuple[int, ...], instances: tuple[InstanceSpec, ...]) -> tuple[PolicyEntry, ...]:
+def _policies(v: Any, default_seeds: tuple[int, ...], instances: tuple[InstanceSpec, ...],
+              base_dir: Path) -> tuple[PolicyEntry, ...]:
     if not isinstance(v, list) or not v:
         raise SpecError("policies: need at least one [[policies]] entry")
-    out = [_policy(check.table(raw, f"policies[{i}]"), f"policies[{i}]", default_seeds, instances)
+    out = [_policy(check.table(raw, f"policies[{i}]"), f"policies[{i}]", default_seeds, instances, base_dir)
            for i, raw in enumerate(v)]
     _check_unique(out, "policies: label {!r} is used twice; set `label` to tell them apart")
     return tuple(out)
 
 
 def _policy(d: dict[str, Any], where: str, default_seeds: tuple[int, ...],
-            instances: tuple[InstanceSpec, ...]) -> PolicyEntry:
+            instances: tuple[InstanceSpec, ...], base_dir: Path) -> PolicyEntry:
     check.known(d, POLICY_KEYS, where)
     kind = d.get("kind") or _infer_kind(d)
     if not isinstance(kind, str) or kind not in KINDS:
@@ -335,7 +339,7 @@ def _policy(d: dict[str, Any], where: str, default_seeds: tuple[int, ...],
     models = d.get("models", [])
     if not isinstance(models, list) or any(not isinstance(m, str) or m not in MODELS for m in models):
         raise SpecError(f"{where}.models: must be a list from {', '.join(MODELS)}, got {check.short(models)}")
-    agent, steps, function, cpu = "", 0, "", 0.0
+    agent, steps, function, cpu, folder, digest = "", 0, "", 0.0, "", ""
     if kind == "optimum":
         if name not in ("", "optimum"):
             raise SpecError(f"{where}.name: an optimum entry is named \"optimum\", got {check.short(name)}")
@@ -351,11 +355,11 @@ def _policy(d: dict[str, Any], where: str, default_seeds: tuple[int, ...],
         steps = check.integer(d.get("steps"), f"{where}.steps", 1, 10**12)
         cpu = check.number(d.get("cpu_seconds", 0.0), f"{where}.cpu_seconds", 0.0, 10.0**9, " (0: no cap)")
     else:
-        function = check.function(d.get("function", ""), f"{where}.function")
+        function, folder, digest = check.custom(d, where, base_dir)
     label = d.get("label") or _default_label(kind, name, agent, function, params)
     check.text(label, f"{where}.label")
     return PolicyEntry(kind, label, name, params, agent, steps, settings, function, seeds, evaluation,
-                       tuple(models), float(cpu))
+                       tuple(models), float(cpu), folder, digest)
 
 
 def _infer_kind(d: Mapping[str, Any]) -> str:

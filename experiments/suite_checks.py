@@ -20,8 +20,6 @@ EVAL_METHODS = ("auto", "exact", "simulate")
 #: evaluation key -> (lowest, highest); the simulator needs two replications for a CI
 EVAL_RANGES = {"replications": (2, 10**6), "periods": (1, 10**8), "warmup": (0, 10**8)}
 EVAL_KEYS = ("method", *EVAL_RANGES)
-_IDENT = r"[A-Za-z_][A-Za-z0-9_]*"
-FUNCTION_RE = re.compile(rf"{_IDENT}(\.{_IDENT})*:{_IDENT}")
 
 
 def table(v: Any, where: str, required: bool = False) -> dict[str, Any]:
@@ -105,9 +103,38 @@ def evaluation(v: Any, where: str) -> dict[str, Any]:
 
 
 def function(v: Any, where: str) -> str:
-    if not isinstance(v, str) or not FUNCTION_RE.fullmatch(v):
-        raise SpecError(f"{where}: required for a custom entry, as \"module.path:callable\", got {short(v)}")
+    from invbench.baselines.custom import is_reference  # late: keeps loading light
+
+    if not isinstance(v, str) or not is_reference(v):
+        raise SpecError(f"{where}: required for a custom entry, as \"module.path:callable\" or "
+                        f"\"file.py:callable\" (found from the suite's folder), got {short(v)}")
     return v
+
+
+def custom(d: Mapping[str, Any], where: str, base_dir: Any) -> tuple[str, str, str]:
+    """(function, folder it is imported from, digest of its source file) of a custom entry.
+
+    The digest goes into the cell key so that editing the policy reruns its cells. A results
+    folder's copy of the suite carries `folder` and `source_digest` as run; a source that
+    cannot be found now gives the digest "missing" and its cells fail with one line.
+    """
+    from pathlib import Path
+
+    from invbench.baselines.custom import digest, source_file
+
+    ref = function(d.get("function", ""), f"{where}.function")
+    folder = d.get("folder", str(Path(base_dir).resolve()))
+    if not isinstance(folder, str) or not folder or "\0" in folder:
+        raise SpecError(f"{where}.folder: must be a folder path string, got {short(folder)}")
+    fixed = d.get("source_digest")
+    if fixed is not None:
+        if not isinstance(fixed, str) or not re.fullmatch(r"[0-9a-f]{16}|missing", fixed):
+            raise SpecError(f"{where}.source_digest: written by the bench (16 hex digits); leave it out, got {short(fixed)}")
+        return ref, folder, fixed
+    try:
+        return ref, folder, digest(source_file(ref, folder))
+    except SpecError:
+        return ref, folder, "missing"
 
 
 def classical(policy: str, params: Mapping[str, Any] | None, specs: Iterable[Any], where: str) -> None:

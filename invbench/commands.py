@@ -94,12 +94,35 @@ def _solve(args: argparse.Namespace) -> int:
     return 0
 
 
+def custom_reference(name: str) -> bool:
+    from invbench.baselines.custom import is_reference
+    return is_reference(name)
+
+
+def _load_custom(spec: Any, ref: str, params: dict[str, Any], seed: int = 0,
+                 evaluation: dict[str, Any] | None = None, progress: bool = False) -> Any:
+    """A user's policy factory, imported relative to the current folder; optimised over its
+    declared `parameters` when no --param is given."""
+    from invbench.baselines import custom
+    try:
+        fn = custom.load_factory(ref, Path.cwd())
+        if not params and custom.parameters(fn, ref):
+            return custom.optimise(fn, ref, spec, seed, evaluation or {}, progress=progress)[0]
+        return custom.build(fn, ref, spec, params, seed, evaluation or {})
+    except SpecError as e:
+        msg = str(e)
+        raise SpecError("--policy:" + msg[len("function:"):] if msg.startswith("function:") else msg) from None
+
+
 def _load_any_policy(spec: Any, name: str, params: dict[str, Any], progress: bool = False,
-                     allow_other_instance: bool = False) -> Any:
-    """A classical policy by name, or a saved policy from its folder (told apart by the path)."""
+                     allow_other_instance: bool = False, custom: dict[str, Any] | None = None) -> Any:
+    """A classical policy by name, a user's "module:callable" or "file.py:callable", or a saved
+    policy from its folder (told apart by the path)."""
     from invbench.baselines.artifact import load_policy
     from invbench.baselines.policies.registry import make_policy, policy_names
     path = Path(name)
+    if custom_reference(name) and not path.exists():
+        return _load_custom(spec, name, params, **(custom or {}))
     if path.is_dir():
         if params:
             raise SpecError(f"--param: a saved policy ({name}) takes no parameters")
@@ -121,6 +144,9 @@ def _evaluate(args: argparse.Namespace) -> int:
     from invbench.experiments.simulate import check_simulation_budget
     spec = load_spec(check_spec_file(args.spec))
     params = _parse_params(args.param)
+    if args.save and custom_reference(args.policy) and not Path(args.policy).exists():
+        raise SpecError("--save: a policy of your own (module:callable) is not saved; keep its file, "
+                        "or save a classical or solved policy")
     if args.save:  # before the policy is optimised
         from invbench.baselines.artifact_io import check_save_dir
         check_save_dir(args.save, "--save")
@@ -129,7 +155,10 @@ def _evaluate(args: argparse.Namespace) -> int:
     if method != "exact":  # before the policy is optimised or the optimum solved
         steps = args.periods if spec.discount < 1 else args.warmup + args.periods
         check_simulation_budget(spec.state_dim, args.replications, steps, args.max_period_steps, args.max_memory_mb)
-    policy = _load_any_policy(spec, args.policy, params, progress=tty, allow_other_instance=args.allow_other_instance)
+    custom = {"seed": args.seed, "progress": tty, "evaluation": {
+        "method": method, "replications": args.replications, "periods": args.periods, "warmup": args.warmup}}
+    policy = _load_any_policy(spec, args.policy, params, progress=tty,
+                              allow_other_instance=args.allow_other_instance, custom=custom)
     opt = None
     if args.gap:
         from invbench.api import solve
@@ -191,7 +220,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 
     p = sub.add_parser("evaluate", help="cost of a policy on an instance, exact or simulated")
     p.add_argument("spec", help="instance TOML file")
-    p.add_argument("--policy", required=True, help="policy name (see `invbench policies`) or a saved-policy folder")
+    p.add_argument("--policy", required=True, help="policy name (see `invbench policies`), a saved-policy folder, or your own "
+                   "factory as module:callable or file.py:callable (imported from the current folder)")
     p.add_argument("--param", action="append", metavar="KEY=VALUE", help="policy parameter; omit all to optimise")
     g = p.add_mutually_exclusive_group()
     g.add_argument("--exact", action="store_true", help="exact evaluation only (fails if too large)")
