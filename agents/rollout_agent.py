@@ -96,7 +96,8 @@ def best_order_up_to(spec: InstanceSpec, max_units: int, seed: int) -> tuple[int
     """The order-up-to level with the lowest CRN cost, by a scan around the critical fractile."""
     from invbench.experiments.simulate import simulate
     from .scaling import demand_quantile
-    ratio = spec.shortage_cost / max(spec.shortage_cost + spec.holding_cost, 1e-12)
+    from invbench.envs.newsvendor import critical_ratio
+    ratio = critical_ratio(spec)
     centre = demand_quantile(spec, min(max(ratio, 0.5), 0.9999), spec.lead_time + 1)
     best = None
     for level in range(max(centre - 12, 0), centre + 4):

@@ -18,6 +18,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from invbench.envs.errors import SpecError
+from invbench.envs.newsvendor import critical_ratio
 from invbench.envs.spec import InstanceSpec
 
 from invbench.experiments.simulate import simulate
@@ -174,8 +175,7 @@ def position_cap_for(spec: InstanceSpec) -> int:
     its reachable state space finite for the exact evaluator. Margin: two standard deviations
     of lead-time demand plus one case pack.
     """
-    h, p = spec.holding_cost, spec.shortage_cost
-    ratio = p / (p + h) if p + h > 0 else 0.5
+    ratio = critical_ratio(spec)
     level = demand_quantile(spec, min(max(ratio, 0.5), 1 - 1e-9), spec.lead_time + 1)
     sd = float(np.sqrt(spec.demand.var * (spec.lead_time + 1)))
     return int(level + int(np.ceil(2 * sd)) + spec.case_pack)
@@ -214,8 +214,7 @@ def deficit_rule(spec: InstanceSpec, level: int, slots: list[tuple[int, ...]] | 
 def deficit_level(spec: InstanceSpec) -> int:
     """Level of the deficit rule: critical-fractile quantile of demand over the periods the
     state spans (the model's lead times), plus one."""
-    h, p = spec.model_def.carrying_cost(spec), spec.shortage_cost
-    ratio = p / (p + h) if p + h > 0 else 0.5
+    ratio = critical_ratio(spec)
     return demand_quantile(spec, min(max(ratio, 0.5), 0.999), spec.state_dim + 1)
 
 
@@ -230,8 +229,7 @@ def reference_cost(spec: InstanceSpec, max_units: int, seed: int = 0,
         act_k = deficit_rule(spec, deficit_level(spec), slots)
         est = simulate(spec, act_k, replications=16, periods=400, warmup=50, seed=seed)
         return max(est.cost, 1e-6)
-    h, p = spec.holding_cost, spec.shortage_cost
-    ratio = p / (p + h) if p + h > 0 else 0.5
+    ratio = critical_ratio(spec)
     level = demand_quantile(spec, min(max(ratio, 0.5), 0.999), spec.lead_time + 1)
     q = spec.case_pack
 
