@@ -29,9 +29,10 @@ from typing import Any
 import numpy as np
 
 from invbench.baselines.policy import legal_orders
+from invbench.envs.newsvendor import order_up_to_level
 from invbench.envs.spec import InstanceSpec
 
-from ._common import ClassicalPolicy, as_states, check_names, fractile, int_param, inventory_position
+from ._common import ClassicalPolicy, as_states, check_names, int_param, inventory_position
 from ._projection import StateCache, project_states
 
 #: Guards the rounding of S - y against float noise in EW.
@@ -101,9 +102,7 @@ class BSPLowEWPolicy(ClassicalPolicy):
             s1, s2 = max(x[0], 0), max(x[1], 0)
             return s1, s2, min(max(x[2], 0), max(s1, s2) + 1)
 
-        h = spec.holding_cost + spec.outdating_cost / spec.shelf_life
-        p = spec.shortage_cost
-        start = fractile(spec.demand.lead_time_pmf(spec.lead_time + 1).cdf(), p / (p + h) if p + h > 0 else 0.5)
+        start = order_up_to_level(spec)  # with the model's carrying cost (holding + outdating share)
         scorer = ExactScorer(spec, build, progress=progress, desc="bsp_low_ew", max_states=max_states)
         try:
             (S,), single = pattern_search(lambda x: scorer((x[0],) * 3), (start,), (1,),
