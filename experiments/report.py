@@ -150,11 +150,11 @@ def write_report(root: str | Path, formats: tuple[str, ...] = ()) -> ReportResul
                             "the same suite and folder to compute their cells again."))
         blocks.append(("table", (["file", "moved to", "problem"], [list(u) for u in unread])))
     md_path, html_path = root / "report.md", root / "report.html"
-    atomic_write(md_path, _to_md(blocks))
+    atomic_write(md_path, blocks_to_md(blocks))
     atomic_write(html_path, blocks_to_html(blocks, root, suite.name))
     extra = [p.with_suffix(f".{f}") for p in pngs for f in formats if f in plots.FIGURE_FORMATS]
     if "md" in formats:
-        atomic_write(root / "summary.md", f"Summary by policy: {suite.name}\n\n" + _to_md([("table", summary)]))
+        atomic_write(root / "summary.md", f"Summary by policy: {suite.name}\n\n" + blocks_to_md([("table", summary)]))
         extra.append(root / "summary.md")
     if "tex" in formats:
         atomic_write(root / "summary.tex", _to_latex(summary, suite.name))
@@ -270,7 +270,8 @@ def _to_latex(table: tuple[list[str], list[list[str]]], suite: str) -> str:
 
 
 
-def _to_md(blocks: list[tuple[str, Any]]) -> str:
+def blocks_to_md(blocks: list[tuple[str, Any]]) -> str:
+    """Markdown from (kind, value) blocks; shared by the reports."""
     out = []
     for kind, val in blocks:
         if kind in ("h1", "h2", "h3"):

@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from invbench.experiments.report import blocks_to_html
+from invbench.experiments.report import blocks_to_html, blocks_to_md
 from invbench.experiments.store import atomic_write
 
 from . import plots
@@ -78,7 +78,7 @@ def write_report(res: Any) -> PortfolioReport:
     blocks.append(("p", "The per-item table (policy, parameters, cost, gap) is portfolio.csv; the regret of every "
                         "alternative is robustness.csv; per-cell results are in choice/ and robustness/."))
     md, page = out / "report.md", out / "report.html"
-    atomic_write(md, _to_md(blocks))
+    atomic_write(md, blocks_to_md(blocks))
     atomic_write(page, blocks_to_html(blocks, out, res.name, kind="portfolio"))
     return PortfolioReport(md, page, pngs)
 
@@ -117,23 +117,5 @@ def _robustness(blocks: list[tuple[str, Any]], res: Any, figure: Any) -> None:
     if len(skipped):
         blocks.append(("p", f"{len(skipped)} alternative(s) could not be measured (first: {skipped['item'].iloc[0]} "
                             f"{skipped['alternative'].iloc[0]}: {skipped['error'].iloc[0]})."))
-
-
-def _to_md(blocks: list[tuple[str, Any]]) -> str:
-    out = []
-    for kind, val in blocks:
-        if kind in ("h1", "h2", "h3"):
-            out.append("#" * int(kind[1]) + " " + val)
-        elif kind == "p":
-            out.append(val)
-        elif kind == "figure":
-            out.append(f"![{val[1]}]({val[0]})\n\n*{val[1]}*")
-        elif kind == "table":
-            head, rows = val
-            cell = lambda s: str(s).replace("|", "\\|")  # noqa: E731
-            out.append("| " + " | ".join(head) + " |\n|" + "---|" * len(head) + "\n"
-                       + "\n".join("| " + " | ".join(cell(c) for c in r) + " |" for r in rows))
-        out.append("")
-    return "\n".join(out)
 
 
