@@ -1,4 +1,6 @@
-"""Every registered model's saved policies (its optimum and its first classical policy) answer
+"""Every registered model's saved policies (its optimum, its first classical policy and a
+learned network, untrained but seeded: what it orders does not matter, only that it is served
+exactly) answer
 `invbench decide` and a real `invbench serve` process with the same orders as `policy.act` in
 Python — one order per slot for the models with several (outside reference: none needed, the
 check is that three routes to the same saved policy agree exactly)."""
@@ -35,6 +37,23 @@ def _visited_states(spec, policy, n: int = 30) -> np.ndarray:
     return np.unique(np.array(out), axis=0)
 
 
+def _save_network(spec, path) -> None:
+    import torch
+
+    from invbench.agents.learned_policy import LearnedPolicy
+    from invbench.agents.network import PolicyNet, architecture
+    from invbench.agents.scaling import scaling_for
+    from invbench.agents.training import resolve_settings
+    sc = scaling_for(spec, resolve_settings("rollout", {"reward_scale": 1.0, "reward_offset": 0.0}))
+    heads = [len(s) for s in sc.slot_sizes] if getattr(sc, "slot_sizes", None) else [sc.n_actions]
+    torch.manual_seed(0)
+    net = PolicyNet(architecture(spec.state_dim, (16,), sum(heads), "tanh", "logits", heads))
+    LearnedPolicy(spec, sc, net, agent="test").save(path)
+
+
+KINDS = ("opt", "cls", "net")
+
+
 @pytest.fixture(scope="module")
 def saved(tmp_path_factory):
     d = tmp_path_factory.mktemp("every")
@@ -43,6 +62,7 @@ def saved(tmp_path_factory):
         spec = spec_from_dict({"model": name, **MODELS[name].example})
         invbench.save_policy(invbench.solve(spec), d / f"{name}-opt")
         invbench.save_policy(invbench.make_policy(policies_for(name)[0], spec), d / f"{name}-cls")
+        _save_network(spec, d / f"{name}-net")
         out[name] = spec
     return d, out
 
@@ -50,7 +70,7 @@ def saved(tmp_path_factory):
 @pytest.mark.parametrize("name", NAMES)
 def test_decide_answers_what_the_policy_orders(saved, name, capsys):
     d, specs = saved
-    for kind in ("opt", "cls"):
+    for kind in KINDS:
         pol = invbench.load_policy(d / f"{name}-{kind}")
         for s in _visited_states(specs[name], pol)[:8]:
             assert main(["decide", str(d / f"{name}-{kind}"), "--state=" + ",".join(map(str, s)), "--json"]) == 0
@@ -61,7 +81,7 @@ def test_decide_answers_what_the_policy_orders(saved, name, capsys):
 
 def test_one_server_serves_every_model(saved):
     d, specs = saved
-    args = [f"{n}-{k}={d / f'{n}-{k}'}" for n in NAMES for k in ("opt", "cls")]
+    args = [f"{n}-{k}={d / f'{n}-{k}'}" for n in NAMES for k in KINDS]
     port = _free_port()
     proc = _start([*args, "--port", str(port)])
     try:
@@ -78,7 +98,7 @@ def test_one_server_serves_every_model(saved):
             time.sleep(0.2)
         with httpx.Client(base_url=url, timeout=10) as client:
             for n in NAMES:
-                for k in ("opt", "cls"):
+                for k in KINDS:
                     pol = invbench.load_policy(d / f"{n}-{k}")
                     states = _visited_states(specs[n], pol)
                     body = [{"policy": f"{n}-{k}", "state": s.tolist()} for s in states]
