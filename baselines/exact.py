@@ -105,9 +105,10 @@ def exact_space(spec: InstanceSpec, full_pipeline: bool = False) -> ExactSpace:
     """The model's exact space (for backorders, optionally the full pipeline state)."""
     model = spec.model_def
     if full_pipeline:
-        if spec.model != "backorder":
-            raise SpecError("full_pipeline: only for the backorder model (which otherwise solves on "
-                            "the inventory position)")
+        import inspect
+        if "full_pipeline" not in inspect.signature(model.exact_space).parameters:
+            raise SpecError(f"full_pipeline: the {spec.model} model has no reduced state to check "
+                            "(only a model solved on a reduced state, e.g. backorders, offers it)")
         return model.exact_space(spec, full_pipeline=True)  # type: ignore[call-arg]
     return model.exact_space(spec)
 

@@ -6,7 +6,6 @@ Python — one order per slot for the models with several (outside reference: no
 check is that three routes to the same saved policy agree exactly)."""
 from __future__ import annotations
 
-import time
 
 import gymnasium as gym
 import httpx
@@ -18,7 +17,7 @@ from invbench.baselines.policies.registry import policies_for
 from invbench.cli import main
 from invbench.envs.models import MODELS
 from invbench.envs.spec import spec_from_dict
-from tests.test_service_http import _free_port, _start, _stop
+from tests.test_service_http import _free_port, _start, _stop, wait_until_healthy
 
 NAMES = sorted(MODELS)
 
@@ -85,17 +84,7 @@ def test_one_server_serves_every_model(saved):
     port = _free_port()
     proc = _start([*args, "--port", str(port)])
     try:
-        url = f"http://127.0.0.1:{port}"
-        deadline = time.time() + 90
-        while True:
-            try:
-                if httpx.get(f"{url}/health", timeout=1).status_code == 200:
-                    break
-            except httpx.TransportError:
-                pass
-            assert proc.poll() is None, proc.stderr.read()
-            assert time.time() < deadline, "server did not answer /health"
-            time.sleep(0.2)
+        url = wait_until_healthy(proc, port)
         with httpx.Client(base_url=url, timeout=10) as client:
             for n in NAMES:
                 for k in KINDS:

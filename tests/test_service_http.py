@@ -43,6 +43,23 @@ def _start(args: list[str]) -> subprocess.Popen:
                             stderr=subprocess.PIPE, text=True, preexec_fn=_die_with_parent)
 
 
+def wait_until_healthy(proc: subprocess.Popen, port: int, seconds: float = 90) -> str:
+    """The server's URL once /health answers; fails the test if it exits or takes too long."""
+    url = f"http://127.0.0.1:{port}"
+    deadline = time.time() + seconds
+    while True:
+        try:
+            if httpx.get(f"{url}/health", timeout=1).status_code == 200:
+                return url
+        except httpx.TransportError:
+            pass
+        if proc.poll() is not None:
+            pytest.fail(f"server exited: {proc.stderr.read()}")
+        if time.time() > deadline:
+            pytest.fail(f"server did not answer /health within {seconds:g} s")
+        time.sleep(0.2)
+
+
 def _stop(proc: subprocess.Popen) -> None:
     if proc.poll() is None:
         proc.terminate()
@@ -65,19 +82,7 @@ def server(tmp_path_factory):
     port = _free_port()
     proc = _start([str(d / "optimal"), f"base={d / 'bs'}", str(d / "bells"), str(d / "net"), "--port", str(port)])
     try:
-        url = f"http://127.0.0.1:{port}"
-        deadline = time.time() + 60
-        while True:
-            try:
-                if httpx.get(f"{url}/health", timeout=1).status_code == 200:
-                    break
-            except httpx.TransportError:
-                pass
-            if proc.poll() is not None:
-                pytest.fail(f"server exited: {proc.stderr.read()}")
-            if time.time() > deadline:
-                pytest.fail("server did not answer /health within 60 s")
-            time.sleep(0.2)
+        url = wait_until_healthy(proc, port)
         with httpx.Client(base_url=url, timeout=10) as client:
             yield client, d
     finally:
