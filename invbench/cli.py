@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 from typing import Sequence
 
@@ -45,13 +46,32 @@ def main(argv: Sequence[str] | None = None) -> int:
     from invbench.envs.demand import DEFAULT_MAX_SUPPORT, support_limit
     try:
         with support_limit(getattr(args, "max_demand_support", DEFAULT_MAX_SUPPORT)):
-            return int(args.func(args) or 0)
+            code = int(args.func(args) or 0)
+            sys.stdout.flush()  # inside the try: a closed pipe is reported here, not at exit
+            return code
     except (SpecError, BudgetError) as e:
         sys.stderr.write(f"invbench: error: {e}\n")
         return 2
     except KeyboardInterrupt:
         sys.stderr.write("invbench: interrupted\n")
         return 130
+    except BrokenPipeError:
+        return _reader_gone()
+
+
+def _reader_gone() -> int:
+    """The reader of stdout closed early (`invbench ... | head`): stop quietly, as Unix tools do.
+
+    Python's documented recipe (library/signal, "Note on SIGPIPE"): point stdout at devnull so
+    the interpreter's final flush does not raise again; exit status 141 = 128 + SIGPIPE, as a
+    shell reports for a tool killed by that signal. Files already written stay written.
+    """
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError):  # stdout without a file descriptor (tests capturing it)
+        pass
+    return 141
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -73,3 +73,17 @@ def test_solve_refuses_over_budget_with_estimate(tmp_path, capsys):
     assert main(["solve", str(path), "--max-states", "1000"]) == 2
     err = capsys.readouterr().err
     assert "states" in err and "MiB" in err and "budget" in err and len(err.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("args", [["policies"], ["solve", "--help"]])
+def test_reader_closing_the_pipe_ends_quietly(args):
+    # `invbench ... | head`: the reader goes away before the output is written. Unix tools stop
+    # quietly with status 128 + SIGPIPE (common practice); no traceback reaches the terminal.
+    p = subprocess.Popen([sys.executable, "-m", "invbench", *args], stdout=subprocess.PIPE,
+                         stderr=subprocess.PIPE)
+    p.stdout.close()
+    err = p.stderr.read().decode()
+    code = p.wait(timeout=120)
+    p.stderr.close()
+    assert "Traceback" not in err and "BrokenPipe" not in err, err
+    assert code in (0, 141), (code, err)
