@@ -126,7 +126,8 @@ class InstanceSpec:
     def label(self) -> str:
         if self.name:
             return self.name
-        return (f"{self.model}-L{self.lead_time}-p{self.shortage_cost:g}-{self.demand.describe()}")
+        return (f"{self.model}-L{self.model_def.lead_time_text(self)}-p{self.shortage_cost:g}-"
+                f"{self.demand.describe()}")
 
     def with_(self, **changes: Any) -> "InstanceSpec":
         """A copy with some fields changed (validated again); a model's own keys too."""

@@ -10,6 +10,7 @@ from __future__ import annotations
 import base64
 import html
 import json
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -17,6 +18,7 @@ from typing import Any
 import pandas as pd
 
 from invbench.envs.errors import SpecError
+from invbench.envs.models import MODEL_KEYS
 
 from . import plots
 from .store import ResultStore, atomic_write
@@ -188,14 +190,23 @@ def _run_line(df: pd.DataFrame, meta: dict[str, Any], total: int, unread: int) -
 
 
 def _instance_line(r: Any) -> str:
-    parts = [f"model {r.model}", f"lead time {r.lead_time}", f"demand {r.demand}",
-             f"holding {r.holding_cost:g}", f"shortage {r.shortage_cost:g}"]
-    if r.fixed_order_cost:
-        parts.append(f"fixed order cost {r.fixed_order_cost:g}")
-    if r.unit_order_cost:
-        parts.append(f"unit order cost {r.unit_order_cost:g}")
-    if r.case_pack != 1:
-        parts.append(f"case pack {r.case_pack}")
+    """The instance in words from its table row; fields its model does not use are empty there."""
+    def given(v: Any) -> bool:
+        return v is not None and not (isinstance(v, float) and math.isnan(v))
+
+    parts = [f"model {r.model}"]
+    for label, key, shown in (("lead time", "lead_time", True), ("demand", "demand", True),
+                              ("holding", "holding_cost", True), ("shortage", "shortage_cost", True),
+                              ("fixed order cost", "fixed_order_cost", bool(getattr(r, "fixed_order_cost", 0))),
+                              ("unit order cost", "unit_order_cost", bool(getattr(r, "unit_order_cost", 0))),
+                              ("case pack", "case_pack", getattr(r, "case_pack", 1) != 1)):
+        v = getattr(r, key, None)
+        if given(v) and shown:
+            parts.append(f"{label} {v:g}" if isinstance(v, float) else f"{label} {v}")
+    for key in MODEL_KEYS:  # the model's own keys (stage lead times, shelf life, ...)
+        v = getattr(r, key, None)
+        if given(v):
+            parts.append(f"{key.replace('_', ' ')} {v}")
     return ", ".join(parts) + "."
 
 

@@ -260,6 +260,8 @@ def build_table(records: list[dict[str, Any]], cells: dict[str, Cell]) -> pd.Dat
                        fixed_order_cost=spec.fixed_order_cost, order_cap_units=spec.order_cap_units,
                        case_pack=spec.case_pack, discount=spec.discount,
                        demand=spec.demand.describe(), demand_mean=spec.demand.mean, **dict(spec.extra))
+            for key in spec.model_def.unused_common:  # empty, not a default the model ignores
+                row[key] = None
         opt = optimum.get(r.get("instance"))
         cost = r.get("cost")
         if opt is not None and cost is not None and opt > 0:

@@ -83,8 +83,12 @@ def _solve(args: argparse.Namespace) -> int:
     word = "average cost per period" if res.criterion == "average" else "discounted cost from empty start"
     print(f"optimal {word}: {res.cost:.6f}   certified bounds [{res.lower:.6f}, {res.upper:.6f}] "
           f"(relative gap {res.gap:.1e})")
-    print(f"states: {res.states:,}   state-order pairs: {res.pairs:,}   iterations: {res.iterations}   "
-          f"seconds: {res.seconds:.2f}   demand tail dropped: {res.truncation_mass:.1e}")
+    if res.mdp is None:  # the model's own exact method: no states were enumerated
+        print(f"method: {res.method}, {res.iterations} recursion steps over {res.states:,} levels   "
+              f"seconds: {res.seconds:.2f}   demand tail dropped: {res.truncation_mass:.1e}")
+    else:
+        print(f"states: {res.states:,}   state-order pairs: {res.pairs:,}   iterations: {res.iterations}   "
+              f"seconds: {res.seconds:.2f}   demand tail dropped: {res.truncation_mass:.1e}")
     for line in summarize(res):
         print(line)
     for note in res.notes:

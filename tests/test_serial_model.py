@@ -7,6 +7,7 @@ cost accounting: in-transit stock charged at the shipping stage's rate).
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 
 import invbench
@@ -68,6 +69,18 @@ def test_spec_round_trips_through_toml(tmp_path):
     again = invbench.envs.spec.load_spec(tmp_path / "s.toml")
     assert again == spec and again.lead_times == (1, 2, 3)
 
+
+
+def test_label_and_results_row_say_the_stage_lead_times_not_an_unused_default():
+    from invbench.experiments.store import build_table
+    from types import SimpleNamespace
+    spec = serial([1, 2, 3], [3.0, 2.0, 1.0])
+    assert spec.label.startswith("serial-L1+2+3-")
+    row = build_table([{"cell_id": "c1", "suite": "s", "instance": spec.label, "kind": "optimum",
+                        "status": "ok", "cost": 1.0}], {"c1": SimpleNamespace(instance=spec)}).iloc[0]
+    # the model ignores the common lead time and holding cost: left empty, its own keys filled
+    assert pd.isna(row["lead_time"]) and pd.isna(row["holding_cost"]) and row["shortage_cost"] == 9.0
+    assert list(row["lead_times"]) == [1, 2, 3]
 
 @pytest.mark.parametrize("L,h,b,demand", [
     ([1, 1], [2.0, 1.0], 9.0, TINY),

@@ -156,6 +156,10 @@ class InventoryModel:
         """One period for a batch: (next state [B, n], outcome)."""
         raise NotImplementedError
 
+    def lead_time_text(self, spec: "InstanceSpec") -> str:
+        """The lead time(s) for a short instance label ("2"); a model with several says them all."""
+        return str(spec.lead_time)
+
     def carrying_cost(self, spec: "InstanceSpec") -> float:
         """Cost per unit per period of stock carried, for first guesses (fractile levels, bounds):
         the holding cost here; a model adds what else stock costs it (e.g. outdating)."""

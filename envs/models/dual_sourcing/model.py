@@ -62,6 +62,9 @@ class DualSourcingModel(InventoryModel):
     def units_out(self, outcome: Outcome, demand: np.ndarray) -> np.ndarray:
         return np.asarray(demand, dtype=np.int64)
 
+    def lead_time_text(self, spec: "InstanceSpec") -> str:
+        return f"{spec.lead_time}/{spec.expedited_lead_time}"  # regular / expedited
+
     def state_labels(self, spec: "InstanceSpec") -> list[str]:
         lr, le = spec.lead_time, spec.expedited_lead_time
         s = (lambda i: "s" if i > 1 else "")

@@ -104,6 +104,9 @@ class SerialModel(InventoryModel):
             return (spec.max_order,) * len(spec.lead_times)
         return default_caps(spec)
 
+    def lead_time_text(self, spec: "InstanceSpec") -> str:
+        return "+".join(str(x) for x in spec.lead_times)  # stage 1 first
+
     def state_labels(self, spec: "InstanceSpec") -> list[str]:
         labels = []
         for j, L in enumerate(spec.lead_times, start=1):
