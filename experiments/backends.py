@@ -18,6 +18,7 @@ from typing import Any, Iterable, Iterator
 from invbench.envs.errors import SpecError
 
 from .cell import run_cell
+from .reaper import start_reaper
 
 BACKENDS = ("local", "ray")
 
@@ -117,11 +118,20 @@ def run_ray(payloads: list[dict[str, Any]], address: str | None, workers: int | 
     except ImportError:
         raise SpecError("--backend: ray is not installed (pip install 'invbench[cluster]')") from None
     kw: dict[str, Any] = {"log_to_driver": False, "logging_level": "ERROR"}
+    reaper = None
     if address is None:  # "local": always a new private instance, never someone's running cluster
         kw.update(address="local", include_dashboard=False, num_cpus=workers)
+        # if this driver is killed outright, the watcher ends the Ray processes it started
+        reaper = start_reaper()
     else:
         kw["address"] = address
-    ray.init(**kw)
+    try:
+        ray.init(**kw)
+    except BaseException:
+        if reaper is not None:
+            reaper.kill()
+            reaper.wait()
+        raise
     try:
         task = ray.remote(num_cpus=1, max_retries=0)(run_cell)
         refs = {task.remote(p): p for p in payloads}
@@ -135,6 +145,9 @@ def run_ray(payloads: list[dict[str, Any]], address: str | None, workers: int | 
                     yield _failed(p, f"ray task failed: {type(e).__name__}: {str(e).splitlines()[0]}")
     finally:
         ray.shutdown()
+        if reaper is not None:  # a clean end: Ray stopped its own processes
+            reaper.kill()
+            reaper.wait()
 
 
 def execute(payloads: list[dict[str, Any]], backend: str = "local", workers: int = 1,

@@ -198,3 +198,33 @@ def test_sigterm_writes_results_with_one_line_and_the_rerun_resumes(tmp_path):
         assert (out / "cells" / name).read_bytes() == blob
     assert len(ResultStore(out).finished()) == 24
     assert len(pd.read_csv(out / "results.csv")) == 24
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not os.path.isdir("/proc/self"), reason="reads the process table from /proc (Linux)")
+def test_sigkill_of_a_ray_driver_leaves_no_ray_process_behind(tmp_path):
+    # A private Ray instance (no --address): after SIGKILL of the driver, Ray's re-parented node
+    # agents used to keep running (seen here with the dashboard and runtime-env agents).
+    pols = [sim_policy(f"S{S}", S, pause=1.0) for S in (4, 6, 8, 10, 12, 14)]
+    path = write_suite(tmp_path / "orph.toml", [instance("a"), instance("b")], pols, [0, 1], name="orph")
+    out = tmp_path / "run"
+    env = subprocess_env()
+    env["RAY_USAGE_STATS_ENABLED"] = "0"
+    cmd = _bench_cmd(path, out) + ["--backend", "ray"]
+    proc = subprocess.Popen(cmd, cwd=REPO_ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                            start_new_session=True)
+    children: dict[int, str] = {}
+    try:
+        _wait_for_cells(proc, out / "cells", 1)
+        children = _descendants(proc.pid)
+        assert len(children) >= 4, children  # the watcher, Ray's head processes and workers
+        os.kill(proc.pid, signal.SIGKILL)
+        proc.wait(timeout=30)
+        deadline = time.monotonic() + 10.0
+        while _alive(children) and time.monotonic() < deadline:
+            time.sleep(0.2)
+        left = _alive(children)
+    finally:
+        for pid in _alive(children):
+            os.kill(pid, signal.SIGKILL)
+    assert not left, f"still running 10 s after the ray driver was killed: {left}"
