@@ -94,7 +94,8 @@ def parse_lead_time(v: Any, model_name: str, allowed: bool) -> LeadTimePmf:
         raise SpecError(f"instance.lead_time: must be {fixed} or a table {{ pmf = [p0, p1, ...] }}, got {_show(v)}")
     for k in v:
         if k not in KEYS:
-            raise SpecError(f"instance.lead_time.{_show(k)}: unknown key of a lead-time table (allowed: pmf, crossing)")
+            name = k[:40] if isinstance(k, str) else _show(k)
+            raise SpecError(f"instance.lead_time.{name}: unknown key of a lead-time table (allowed: pmf, crossing)")
     crossing = v.get("crossing", False)
     if not isinstance(crossing, (bool, np.bool_)):
         raise SpecError(f"instance.lead_time.crossing: must be true or false, got {_show(crossing)}")
