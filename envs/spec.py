@@ -139,6 +139,12 @@ class InstanceSpec:
         return float(self.lead_time) if law is None else law.mean  # type: ignore[arg-type]
 
     @property
+    def lead_time_text(self) -> str:
+        """The lead time for people: "2", or a random one's pmf such as "pmf(0.2,0.5,0.3)"."""
+        law = self.lead_time_law
+        return str(self.lead_time) if law is None else law.describe()
+
+    @property
     def lead_time_kind(self) -> str:
         """"fixed", "in_sequence" (random, orders never cross) or "crossing" (drawn per order)."""
         law = self.lead_time_law
@@ -153,8 +159,7 @@ class InstanceSpec:
     def label(self) -> str:
         if self.name:
             return self.name
-        law = self.lead_time_law
-        lead = self.lead_time if law is None else "~" + law.describe().replace(" ", "-")
+        lead = self.lead_time_text if self.lead_time_law is None else "~" + self.lead_time_text.replace(" ", "-")
         return (f"{self.model}-L{lead}-p{self.shortage_cost:g}-{self.demand.describe()}")
 
     def with_(self, **changes: Any) -> "InstanceSpec":

@@ -187,8 +187,15 @@ def _run_line(df: pd.DataFrame, meta: dict[str, Any], total: int, unread: int) -
             f"numpy {versions.get('numpy', '?')}, torch {versions.get('torch', '?')}.")
 
 
+def _plain(v: Any) -> Any:
+    """2.0 shown as 2 (a lead-time column holding random lead times' means is a float column)."""
+    return f"{v:g}" if isinstance(v, float) else v
+
+
 def _instance_line(r: Any) -> str:
-    parts = [f"model {r.model}", f"lead time {r.lead_time}", f"demand {r.demand}",
+    pmf = getattr(r, "lead_time_pmf", None)
+    lead = f"{pmf} (mean {r.lead_time:g})" if isinstance(pmf, str) and pmf else _plain(r.lead_time)
+    parts = [f"model {r.model}", f"lead time {lead}", f"demand {r.demand}",
              f"holding {r.holding_cost:g}", f"shortage {r.shortage_cost:g}"]
     if r.fixed_order_cost:
         parts.append(f"fixed order cost {r.fixed_order_cost:g}")
