@@ -74,6 +74,13 @@ class InstanceSpec:
             if key == "lead_time" and isinstance(v, (Mapping, LeadTimePmf)):
                 object.__setattr__(self, key, parse_lead_time(v, model.name, model.random_lead_time))
                 continue
+            if key == "lead_time" and model.random_lead_time:
+                try:
+                    check_field("instance.lead_time", v, f)
+                except SpecError as e:  # say that a table is allowed too
+                    fixed = f.range_text()
+                    raise SpecError(str(e).replace(f"must be {fixed}", f"must be {fixed} or a table "
+                                                   "{ pmf = [p0, p1, ...] } (random lead time)", 1)) from None
             object.__setattr__(self, key, check_field(f"instance.{key}", v, f))
         extra = dict(self.extra) if not isinstance(self.extra, tuple) else dict(self.extra)
         for k in extra:
