@@ -29,7 +29,6 @@ POLICIES: dict[str, type[PolicyBase]] = {
     "constant_order": ConstantOrderPolicy,
     "capped_base_stock": CappedBaseStockPolicy,
     "pil": PILPolicy,
-    "pout": POUTPolicy,
     "myopic": MyopicPolicy,
     "bsp_low_ew": BSPLowEWPolicy,
     "single_regular": SingleRegularPolicy,
@@ -40,6 +39,7 @@ POLICIES: dict[str, type[PolicyBase]] = {
     "echelon_base_stock": EchelonBaseStockPolicy,
     "shang_song": ShangSongPolicy,
     "installation_base_stock": InstallationBaseStockPolicy,
+    "pout": POUTPolicy,
 }
 
 _DESCRIPTIONS: dict[str, str] = {
@@ -49,8 +49,6 @@ _DESCRIPTIONS: dict[str, str] = {
     "capped_base_stock": "order up to S, at most r units a period (params: S, r)",
     "pil": "order so the expected stock when the order arrives reaches the target (params: target); "
            "random lead time: projected over the mean lead time",
-    "pout": "proportional order-up-to: mean demand plus (S - mean demand - position) / T "
-            "(Disney et al. 2016; params: S, T >= 1; T = 1 is base-stock)",
     "myopic": "order minimising the expected cost of the period the order arrives in (no params)",
     "bsp_low_ew": "perishables: order up to S1 (below b) or S2 on the position less expected waste "
                   "(Haijema & Minner 2019; params: S1, S2, b)",
@@ -63,6 +61,8 @@ _DESCRIPTIONS: dict[str, str] = {
     "shang_song": "serial chain: echelon base-stock at the Shang-Song newsvendor-bound levels (no params)",
     "installation_base_stock": "serial chain: stage j orders up to r[j] on its own stock, transit and "
                                "the order from below (params: r, a list)",
+    "pout": "proportional order-up-to: mean demand plus (S - mean demand - position) / T "
+            "(Disney et al. 2016; params: S, T >= 1; T = 1 is base-stock)",
 }
 
 
