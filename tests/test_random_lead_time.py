@@ -200,3 +200,21 @@ def test_invbench_train_runs_on_a_random_lead_time(agent, sets, crossing, tmp_pa
     # in sequence: solved and measured exactly; crossing: no optimum, measured by simulation
     assert measured["method"] == ("simulated" if crossing else "exact"), measured
     assert (measured["optimum"] is None) == crossing and measured["cost"] > 0
+
+
+@pytest.mark.parametrize("model", ["lost_sales", "backorder"])
+def test_bounds_that_bind_are_widened(model):
+    from invbench.envs.models.exact_space import Bounds
+    spec = spec_with(model, {"pmf": [0.1, 0.2, 0.3, 0.4]})
+    ref = solve(spec)
+    tight = Bounds(upper=3, lower=0 if model == "lost_sales" else -3)
+    res = solve(spec, bounds=tight)
+    assert res.widenings > 0 and res.bounds.upper > 3
+    assert abs(res.cost - ref.cost) <= 2e-6 * ref.cost
+
+
+def test_over_budget_solve_is_refused_with_the_estimate():
+    from invbench.envs.errors import BudgetError
+    spec = spec_with("lost_sales", {"pmf": [0.2] * 5})
+    with pytest.raises(BudgetError, match=r"exact solve: needs [\d,]+ states.*state budget of 100"):
+        solve(spec, max_states=100)
