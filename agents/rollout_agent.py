@@ -36,6 +36,7 @@ import torch
 from torch import nn
 
 from invbench.envs.dynamics import initial_state, step_fn
+from invbench.envs.random_inputs import PeriodInputs
 from invbench.envs.spec import InstanceSpec
 
 from .learned_policy import LearnedPolicy
@@ -98,7 +99,7 @@ def best_order_up_to(spec: InstanceSpec, max_units: int, seed: int) -> tuple[int
     from .scaling import demand_quantile
     from invbench.envs.newsvendor import critical_ratio
     ratio = critical_ratio(spec)
-    centre = demand_quantile(spec, min(max(ratio, 0.5), 0.9999), spec.lead_time + 1)
+    centre = demand_quantile(spec, min(max(ratio, 0.5), 0.9999), spec.longest_lead_time + 1)
     best = None
     for level in range(max(centre - 12, 0), centre + 4):
         c = simulate(spec, order_up_to(level, spec, max_units), replications=32, periods=600, warmup=100, seed=seed).cost
@@ -111,6 +112,7 @@ def best_order_up_to(spec: InstanceSpec, max_units: int, seed: int) -> tuple[int
 def sample_states(spec: InstanceSpec, act: Any, s: RolloutSettings, rng: np.random.Generator) -> tuple[np.ndarray, int]:
     """States visited by the current policy after a warm-up; returns them and periods simulated."""
     step = step_fn(spec)
+    inputs = PeriodInputs(spec)  # a random lead time's cut-off (none for most instances)
     per_chain = -(-s.states_per_iteration // s.chains)
     state = initial_state(spec, s.chains)
     kept = []
@@ -119,7 +121,8 @@ def sample_states(spec: InstanceSpec, act: Any, s: RolloutSettings, rng: np.rand
         if t >= s.state_warmup and (t - s.state_warmup) % s.state_spacing == 0:
             kept.append(state.copy())
         order = act_unique(act, state)
-        state, _ = step(state, order, spec.demand.sample(rng, s.chains))
+        extra = inputs.draw([rng] * len(inputs.names), s.chains)
+        state, _ = step(state, order, spec.demand.sample(rng, s.chains), **extra)
     states = np.concatenate(kept)[: s.states_per_iteration]
     return states, periods * s.chains
 
@@ -135,6 +138,12 @@ def rollout_q(spec: InstanceSpec, act: Any, states: np.ndarray, sizes: np.ndarra
     N, K, M = len(states), (len(sizes) if np.ndim(sizes) == 1 else sizes.shape[1]), rollouts
     u = rng.random((horizon + 1, N, 1, M))
     u = np.broadcast_to(u, (horizon + 1, N, K, M)).reshape(horizon + 1, N * K * M)
+    inputs = PeriodInputs(spec)  # other random inputs (a lead-time cut-off): common to the K too
+    v = []
+    for law in inputs.laws:
+        x = rng.random((horizon + 1, N, 1, M, law.width))
+        x = np.broadcast_to(x, (horizon + 1, N, K, M, law.width)).reshape(horizon + 1, N * K * M, law.width)
+        v.append(x[..., 0] if law.width == 1 else x)
     state = np.repeat(states, K * M, axis=0)
     if np.ndim(sizes) == 1:
         order = np.tile(np.repeat(sizes, M), N)
@@ -144,7 +153,8 @@ def rollout_q(spec: InstanceSpec, act: Any, states: np.ndarray, sizes: np.ndarra
     for t in range(horizon + 1):
         if t > 0:
             order = act_unique(act, state)
-        state, parts = step(state, order, spec.demand.from_uniforms(u[t]))
+        extra = inputs.from_uniforms([x[t] for x in v])
+        state, parts = step(state, order, spec.demand.from_uniforms(u[t]), **extra)
         total += parts.total
     return total.reshape(N, K, M).mean(axis=2)
 
@@ -199,7 +209,7 @@ def run_rollout_agent(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, 
     gen = torch.Generator().manual_seed(seed)
     torch.manual_seed(seed)
     sizes = scaling.order_sizes_units
-    horizon = 8 * (spec.lead_time + 1) + 16 if s.horizon == AUTO else int(s.horizon)
+    horizon = 8 * (spec.longest_lead_time + 1) + 16 if s.horizon == AUTO else int(s.horizon)
     if scaling.n_slots > 1:
         horizon = 8 * (spec.state_dim + 1) + 16 if s.horizon == AUTO else int(s.horizon)
         return _run_slots(spec, s, scaling, steps, seed, monitor, rng, gen, horizon)

@@ -173,11 +173,12 @@ def position_cap_for(spec: InstanceSpec) -> int:
     lost-sales position after ordering (Morton 1969; Zipkin 2008 — from memory), so a cap a
     little above it never cuts off the optimum, while it keeps every learned policy stable and
     its reachable state space finite for the exact evaluator. Margin: two standard deviations
-    of lead-time demand plus one case pack.
+    of lead-time demand plus one case pack. A random lead time counts as its longest value
+    (a larger level, so the cap stays on the safe side).
     """
     ratio = critical_ratio(spec)
-    level = demand_quantile(spec, min(max(ratio, 0.5), 1 - 1e-9), spec.lead_time + 1)
-    sd = float(np.sqrt(spec.demand.var * (spec.lead_time + 1)))
+    level = demand_quantile(spec, min(max(ratio, 0.5), 1 - 1e-9), spec.longest_lead_time + 1)
+    sd = float(np.sqrt(spec.demand.var * (spec.longest_lead_time + 1)))
     return int(level + int(np.ceil(2 * sd)) + spec.case_pack)
 
 
@@ -230,7 +231,7 @@ def reference_cost(spec: InstanceSpec, max_units: int, seed: int = 0,
         est = simulate(spec, act_k, replications=16, periods=400, warmup=50, seed=seed)
         return max(est.cost, 1e-6)
     ratio = critical_ratio(spec)
-    level = demand_quantile(spec, min(max(ratio, 0.5), 0.999), spec.lead_time + 1)
+    level = demand_quantile(spec, min(max(ratio, 0.5), 0.999), spec.longest_lead_time + 1)
     q = spec.case_pack
 
     def act(state: np.ndarray) -> np.ndarray:

@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 from scipy.sparse.csgraph import breadth_first_order
 
-from invbench.envs.errors import BudgetError, SpecError
+from invbench.envs.errors import BudgetError, SimulationOnly, SpecError
 from invbench.envs.models.exact_space import Bounds, ExactSpace
 from invbench.envs.spec import InstanceSpec, load_spec
 
@@ -137,6 +137,9 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
         raise SpecError(f"method: {method} is for the average-cost criterion (discount = 1)")
     if spec.discount == 1 and method in ("value_iteration", "policy_iteration"):
         raise SpecError(f"method: {method} is for the discounted criterion (discount < 1)")
+    reason = spec.model_def.simulation_only(spec)
+    if reason:
+        raise SimulationOnly(f"exact solve: {reason}")
     if spec.discount == 1 and method in ("auto", "rvi") and expected_iterations(spec) > RVI_MAX_ITER:
         from invbench.envs.models.exact_space import eoq_room
         cycle = max(spec.case_pack, eoq_room(spec), 1)

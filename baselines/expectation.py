@@ -1,5 +1,6 @@
-"""The one expectation routine: step a batch of (state, action) rows against every demand value
-with positive probability and weight the results by the pmf.
+"""The one expectation routine: step a batch of (state, action) rows against every value of the
+period's random inputs with positive probability (demand, and any other input the model
+declares, such as a lead-time cut-off) and weight the results by their probability.
 
 It gives, per row, the expected value of each named cost part, the probability that the next
 state had to be clipped back into a finite space, and the (row, next-state, probability)
@@ -12,6 +13,8 @@ from typing import Callable
 
 import numpy as np
 import scipy.sparse as sp
+
+from invbench.envs.random_inputs import JointOutcomes
 
 #: (row, demand) combinations stepped per chunk: bounds the temporary memory.
 CHUNK_ROWS = 4_000_000
@@ -28,10 +31,13 @@ class Expectation:
     P: sp.csr_matrix | None = None  # [rows, n_cols], when n_cols was given (triplets then empty)
 
 
-def expected_step(step: Callable, states: np.ndarray, actions: np.ndarray, pmf: np.ndarray,
+def expected_step(step: Callable, states: np.ndarray, actions: np.ndarray, pmf: np.ndarray | JointOutcomes,
                   clip: Callable[[np.ndarray], np.ndarray] | None, lookup: Callable[[np.ndarray], np.ndarray],
                   on_next: Callable[[np.ndarray], None] | None = None, n_cols: int | None = None) -> Expectation:
-    """Expectation over demand of one period from each (state, action) row.
+    """Expectation over the random inputs of one period from each (state, action) row.
+
+    pmf: the demand pmf (normalized), or the joint outcomes of all the period's random inputs
+    (`envs.random_inputs.period_outcomes`), whose other inputs are passed to `step` by name.
 
     clip(next) keeps next states inside a finite space in place and returns where it acted;
     lookup(next) maps next states to column indices; on_next(next) sees every next state (the
@@ -39,10 +45,10 @@ def expected_step(step: Callable, states: np.ndarray, actions: np.ndarray, pmf: 
     sparse block at once (many demand values lead to the same next state), which keeps the
     peak memory near that of the final matrix.
     """
-    dvals = np.flatnonzero(pmf > 0)
-    dprob = pmf[dvals]
+    joint = pmf if isinstance(pmf, JointOutcomes) else JointOutcomes.of_demand(pmf)
+    k = len(joint)
     n = len(states)
-    chunk = max(1, CHUNK_ROWS // max(len(dvals), 1))
+    chunk = max(1, CHUNK_ROWS // max(k, 1))
     names: tuple[str, ...] = ()
     costs = None
     clip_mass = np.zeros(n)
@@ -50,10 +56,9 @@ def expected_step(step: Callable, states: np.ndarray, actions: np.ndarray, pmf: 
     blocks: list[sp.csr_matrix] = []
     for lo in range(0, n, chunk):
         hi = min(lo + chunk, n)
-        rr = np.repeat(np.arange(lo, hi), len(dvals))
-        dd = np.tile(dvals, hi - lo)
-        w = np.tile(dprob, hi - lo)
-        nxt, out = step(states[rr], actions[rr], dd)
+        rr = np.repeat(np.arange(lo, hi), k)
+        dd, extra, w = joint.tiled(hi - lo)
+        nxt, out = step(states[rr], actions[rr], dd, **extra)
         if costs is None:
             names = tuple(out.costs)
             costs = np.zeros((n, len(names)))

@@ -76,12 +76,12 @@ def check_budget(est: SizeEstimate, max_states: int, max_bytes: int) -> None:
 
 
 def build_mdp(space: ExactSpace, bounds: Bounds) -> FiniteMDP:
-    """Step every (state, action, demand) of the space through the model; weight by the pmf."""
+    """Step every (state, action, random inputs) of the space through the model; weight by
+    their probability."""
     index = space.index(bounds)
     states = index.states
     pair_state, pair_action, pair_start, at_upper = space.pairs(states, bounds)
-    pmf_obj = space.demand_pmf()
-    ex = expected_step(space.step, states[pair_state], pair_action, pmf_obj.normalized(),
+    ex = expected_step(space.step, states[pair_state], pair_action, space.outcomes(),
                        lambda nxt: space.clip(nxt, bounds), index.lookup, n_cols=len(states))
     P = ex.P
     costs = space.pair_costs(states, pair_state, pair_action, ex.costs)

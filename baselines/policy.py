@@ -22,10 +22,13 @@ class PolicyBase:
 
     `models` names the models a policy is defined for (empty: any); suites pair a policy only
     with instances of those models, and building it for another model is refused.
+    `lead_time_kinds` names the lead times it is defined for: "fixed", "in_sequence" (random,
+    orders never cross) and "crossing" (random, drawn per order); other instances likewise.
     """
 
     name: str = "policy"
     models: tuple[str, ...] = ()
+    lead_time_kinds: tuple[str, ...] = ("fixed",)
 
     def act(self, obs: np.ndarray) -> np.ndarray:  # pragma: no cover - abstract
         raise NotImplementedError

@@ -15,8 +15,9 @@ import numpy as np
 import scipy.sparse as sp
 
 from invbench.envs.checks import check_number
-from invbench.envs.errors import BudgetError
+from invbench.envs.errors import BudgetError, SimulationOnly
 from invbench.envs.inventory_env import check_start
+from invbench.envs.random_inputs import period_outcomes
 from invbench.envs.models.state_index import StateCodec, StateIndex
 from invbench.envs.spec import InstanceSpec, load_spec
 
@@ -124,7 +125,7 @@ def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
     n = spec.state_dim
     radix_max = model.index_radix(spec)
     codec = StateCodec(n, radix_max)
-    pmf = spec.demand.pmf().normalized()
+    outcomes = period_outcomes(spec, spec.demand.pmf().normalized())  # demand x any other input
     limit = _stock_limit(spec)
     s0 = check_start(spec, start)
     known = codec.encode(s0)
@@ -135,8 +136,8 @@ def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
     clipped_total = 0
     total = 1
 
-    def step(s: np.ndarray, a: np.ndarray, d: np.ndarray):
-        return model.step(spec, s, a, d)
+    def step(s: np.ndarray, a: np.ndarray, d: np.ndarray, **inputs: np.ndarray):
+        return model.step(spec, s, a, d, **inputs)
 
     def clip_far(nxt: np.ndarray) -> np.ndarray:
         if n > 1 and nxt[:, 1:].max(initial=0) > radix_max:
@@ -162,7 +163,7 @@ def explore(spec: InstanceSpec, policy: Any, start: np.ndarray | None = None,
             if truncate_at is not None:
                 paused = (block[:, 0] >= truncate_at) & (orders.sum(axis=1) > 0)
                 orders = np.where(paused[:, None], 0, orders)
-            ex = expected_step(step, block, orders, pmf, clip_far, codec.encode)
+            ex = expected_step(step, block, orders, outcomes, clip_far, codec.encode)
             names = ex.cost_names
             cost = ex.costs
             if truncate_at is not None:
@@ -238,11 +239,15 @@ def evaluate_exact(spec: Any, policy: Any, *, start: np.ndarray | None = None, r
     result is accepted only if the long-run probability that the truncation acts is at most
     `max_far_stock_share`; it is reported as `far_stock_share`. Orders that are not legal sizes
     are refused unless clip=True (then counted in `clipped_orders`).
-    Raises BudgetError when the reachable state space is too large or the policy unstable.
+    Raises BudgetError when the reachable state space is too large or the policy unstable, and
+    its subclass SimulationOnly when the instance has no exact face (lead times that may cross).
     """
     spec = load_spec(spec)
     rel_tol = check_number("rel_tol", rel_tol, 0.0, 1.0, lo_open=True, hi_open=True)
     max_states = int(check_number("max_states", max_states, 1, None, integer=True))
+    reason = spec.model_def.simulation_only(spec)
+    if reason:
+        raise SimulationOnly(f"exact evaluation: {reason}")
     t0 = time.perf_counter()
     truncate_at = None
     try:

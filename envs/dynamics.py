@@ -17,11 +17,13 @@ StepFn = Callable[[np.ndarray, np.ndarray, np.ndarray], tuple[np.ndarray, Outcom
 
 
 def step_fn(spec: InstanceSpec) -> StepFn:
-    """`step(state[B, n], orders[B] or [B, k], demand[B]) -> (next_state, outcome)` for `spec`."""
+    """`step(state[B, n], orders[B] or [B, k], demand[B], **inputs) -> (next_state, outcome)`
+    for `spec`; `inputs` are the model's other random inputs, if any (`random_inputs.py`)."""
     model = spec.model_def
 
-    def step(state: np.ndarray, order: np.ndarray, demand: np.ndarray) -> tuple[np.ndarray, Outcome]:
-        return model.step(spec, state, order, demand)
+    def step(state: np.ndarray, order: np.ndarray, demand: np.ndarray,
+             **inputs: np.ndarray) -> tuple[np.ndarray, Outcome]:
+        return model.step(spec, state, order, demand, **inputs)
 
     return step
 

@@ -10,3 +10,10 @@ class SpecError(ValueError):
 
 class BudgetError(RuntimeError):
     """A computation would exceed its configured state or memory budget; the message has the estimate."""
+
+
+class SimulationOnly(BudgetError):
+    """The instance has no exact face (e.g. lead times that may cross): it can only be simulated.
+
+    A BudgetError, so that "exact where possible, else simulation" falls back as for a size refusal.
+    """

@@ -13,6 +13,7 @@ import numpy as np
 from .actions import ActionCodec
 from .checks import check_count
 from .errors import SpecError
+from .random_inputs import PeriodInputs
 from .spec import InstanceSpec, load_spec, spec_from_dict
 
 DEFAULT_EPISODE_LENGTH = 500
@@ -94,6 +95,9 @@ class InventoryEnv(gym.Env):
         self.observation_space = observation_space(self.spec_)
         self._state = self._start.copy()
         self._t = 0
+        # other random inputs (a random lead time's cut-off): own streams, so demand is the same
+        self._inputs = PeriodInputs(self.spec_)
+        self._input_rngs = self._inputs.streams(None)
 
     @property
     def order_sizes_units(self) -> np.ndarray:
@@ -102,6 +106,8 @@ class InventoryEnv(gym.Env):
 
     def reset(self, *, seed: int | None = None, options: dict | None = None) -> tuple[np.ndarray, dict]:
         super().reset(seed=seed)
+        if seed is not None:
+            self._input_rngs = self._inputs.streams(seed)
         self._state = self._start.copy()
         self._t = 0
         return self._obs(), {}
@@ -109,7 +115,8 @@ class InventoryEnv(gym.Env):
     def step(self, action: Any) -> tuple[np.ndarray, float, bool, bool, dict]:
         order = self._codec.orders(action, 1)
         demand = self.spec_.demand.sample(self.np_random, 1)
-        self._state, parts = self._model.step(self.spec_, self._state, order, demand)
+        extra = self._inputs.draw(self._input_rngs, 1)
+        self._state, parts = self._model.step(self.spec_, self._state, order, demand, **extra)
         self._t += 1
         info = info_dict(self.spec_, order, demand, parts, 0)
         truncated = self._t >= self.episode_length

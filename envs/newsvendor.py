@@ -9,6 +9,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 if TYPE_CHECKING:
+    from .demand import DiscretePmf
     from .spec import InstanceSpec
 
 
@@ -25,7 +26,18 @@ def fractile(cdf: np.ndarray, ratio: float) -> int:
     return int(min(np.searchsorted(cdf, ratio - 1e-12), len(cdf) - 1))
 
 
+def lead_time_demand_pmf(spec: "InstanceSpec") -> "DiscretePmf":
+    """Demand over L + 1 periods; for a random lead time the mixture over L (Zipkin 2000, from
+    memory: with orders in sequence the backorder net inventory is the position V periods
+    earlier minus V + 1 periods of demand, V distributed as L)."""
+    law = spec.lead_time_law
+    if law is None:
+        return spec.demand.lead_time_pmf(spec.lead_time + 1)
+    from .lead_time import lead_time_demand
+    return lead_time_demand(spec.demand, law)
+
+
 def order_up_to_level(spec: "InstanceSpec", periods: int | None = None, holding: float | None = None) -> int:
-    """Critical-fractile level of demand over `periods` (default L + 1) periods."""
-    n = spec.lead_time + 1 if periods is None else periods
-    return fractile(spec.demand.lead_time_pmf(n).cdf(), critical_ratio(spec, holding))
+    """Critical-fractile level of demand over `periods` (default L + 1, L random or fixed) periods."""
+    pmf = lead_time_demand_pmf(spec) if periods is None else spec.demand.lead_time_pmf(periods)
+    return fractile(pmf.cdf(), critical_ratio(spec, holding))

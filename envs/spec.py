@@ -16,6 +16,7 @@ import tomli_w
 
 from .demand import Demand
 from .errors import SpecError
+from .lead_time import LeadTimePmf, parse_lead_time
 from .models import MODELS, Field, InventoryModel, OrderSlot, get_model
 
 #: Tables a spec file may hold; only [instance] is read here, the others by their own parts.
@@ -26,6 +27,7 @@ COST_LIMIT = 1e12
 
 #: Keys every single-item model shares; a model declares its own in its folder.
 COMMON_FIELDS: dict[str, Field] = {
+    # lost_sales and backorder also take a table { pmf = [...] } (envs/lead_time.py)
     "lead_time": Field(int, 0, "periods between ordering and arrival", 0, 50),
     "holding_cost": Field(float, 1.0, "per unit of end-of-period stock", 0.0, COST_LIMIT),
     "shortage_cost": Field(float, 9.0, "per unit lost / backordered per period", 0.0, COST_LIMIT),
@@ -47,7 +49,7 @@ class InstanceSpec:
 
     model: str
     demand: Demand
-    lead_time: int = 0
+    lead_time: int | LeadTimePmf = 0  # a LeadTimePmf when random (lost_sales, backorder)
     holding_cost: float = 1.0
     shortage_cost: float = 9.0
     unit_order_cost: float = 0.0
@@ -69,6 +71,16 @@ class InstanceSpec:
                 if v != f.default:
                     raise SpecError(f"instance.{key}: not used by the {model.name} model (leave it out)")
                 continue
+            if key == "lead_time" and isinstance(v, (Mapping, LeadTimePmf)):
+                object.__setattr__(self, key, parse_lead_time(v, model.name, model.random_lead_time))
+                continue
+            if key == "lead_time" and model.random_lead_time:
+                try:
+                    check_field("instance.lead_time", v, f)
+                except SpecError as e:  # say that a table is allowed too
+                    fixed = f.range_text()
+                    raise SpecError(str(e).replace(f"must be {fixed}", f"must be {fixed} or a table "
+                                                   "{ pmf = [p0, p1, ...] } (random lead time)", 1)) from None
             object.__setattr__(self, key, check_field(f"instance.{key}", v, f))
         extra = dict(self.extra) if not isinstance(self.extra, tuple) else dict(self.extra)
         for k in extra:
@@ -118,6 +130,34 @@ class InstanceSpec:
         return self.order_slots[0].sizes_units
 
     @property
+    def lead_time_law(self) -> LeadTimePmf | None:
+        """The lead-time pmf when the lead time is random, None when it is fixed."""
+        return self.lead_time if isinstance(self.lead_time, LeadTimePmf) else None
+
+    @property
+    def longest_lead_time(self) -> int:
+        """The fixed lead time, or the longest one a random lead time can take (the state layout)."""
+        law = self.lead_time_law
+        return self.lead_time if law is None else law.longest  # type: ignore[return-value]
+
+    @property
+    def mean_lead_time(self) -> float:
+        law = self.lead_time_law
+        return float(self.lead_time) if law is None else law.mean  # type: ignore[arg-type]
+
+    @property
+    def lead_time_text(self) -> str:
+        """The lead time for people: "2", or a random one's pmf such as "pmf(0.2,0.5,0.3)"."""
+        law = self.lead_time_law
+        return str(self.lead_time) if law is None else law.describe()
+
+    @property
+    def lead_time_kind(self) -> str:
+        """"fixed", "in_sequence" (random, orders never cross) or "crossing" (drawn per order)."""
+        law = self.lead_time_law
+        return "fixed" if law is None else ("crossing" if law.crossing else "in_sequence")
+
+    @property
     def state_dim(self) -> int:
         """Length of the state vector (the model's layout)."""
         return self.model_def.state_dim(self)
@@ -155,7 +195,7 @@ class InstanceSpec:
         for key in COMMON_FIELDS:
             v = getattr(self, key)
             if v is not None and key not in unused:
-                d[key] = v
+                d[key] = v.to_dict() if isinstance(v, LeadTimePmf) else v
         # list-valued keys are kept as tuples (the spec is frozen) and written as lists
         d.update({k: list(v) if isinstance(v, tuple) else v for k, v in self.extra if v is not None})
         d["demand"] = self.demand.to_dict()

@@ -16,6 +16,7 @@ from gymnasium.vector.utils import batch_space
 
 from .actions import ActionCodec
 from .inventory_env import DEFAULT_EPISODE_LENGTH, check_count, observation_space, resolve_spec
+from .random_inputs import PeriodInputs
 
 
 class InventoryVectorEnv(VectorEnv):
@@ -36,12 +37,15 @@ class InventoryVectorEnv(VectorEnv):
         self.observation_space = batch_space(self.single_observation_space, self.num_envs)
         self.action_space = batch_space(self.single_action_space, self.num_envs)
         self._rng = np.random.default_rng()
+        self._inputs = PeriodInputs(self.spec_)  # e.g. a random lead time's cut-off, own streams
+        self._input_rngs = self._inputs.streams(None)
         self._state = self._model.start_state(self.spec_, self.num_envs)
         self._t = 0
 
     def reset(self, *, seed: int | None = None, options: dict | None = None) -> tuple[np.ndarray, dict]:
         if seed is not None:
             self._rng = np.random.default_rng(seed)
+            self._input_rngs = self._inputs.streams(seed)
         self._state = self._model.start_state(self.spec_, self.num_envs)
         self._t = 0
         return self._state.astype(np.float32), {}
@@ -49,7 +53,8 @@ class InventoryVectorEnv(VectorEnv):
     def step(self, actions: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, dict]:
         order = self._codec.orders(actions, self.num_envs)
         demand = self.spec_.demand.sample(self._rng, self.num_envs)
-        self._state, parts = self._model.step(self.spec_, self._state, order, demand)
+        extra = self._inputs.draw(self._input_rngs, self.num_envs)
+        self._state, parts = self._model.step(self.spec_, self._state, order, demand, **extra)
         self._t += 1
         cost = parts.total
         infos: dict[str, Any] = {"demand": demand, "order_units": order[:, 0] if order.shape[1] == 1 else order}

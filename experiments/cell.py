@@ -219,7 +219,7 @@ def map_states(spec: InstanceSpec) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     oldest), a typical shape of the pipeline when demand is steady. Axes reach about the
     demand over L + 1 periods plus two standard deviations.
     """
-    L = spec.lead_time
+    L = spec.longest_lead_time  # the state's L - 1 pipeline entries (random lead time: the longest)
     mean, sd = spec.demand.mean, math.sqrt(spec.demand.var)
     top = int(min(MAP_MAX_SIDE - 1, math.ceil(mean * (L + 1) + 2 * sd * math.sqrt(L + 1))))
     on_hand = np.arange(top + 1)

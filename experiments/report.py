@@ -189,6 +189,11 @@ def _run_line(df: pd.DataFrame, meta: dict[str, Any], total: int, unread: int) -
             f"numpy {versions.get('numpy', '?')}, torch {versions.get('torch', '?')}.")
 
 
+def _plain(v: Any) -> Any:
+    """2.0 shown as 2 (a lead-time column holding random lead times' means is a float column)."""
+    return f"{v:g}" if isinstance(v, float) else v
+
+
 def _instance_line(r: Any) -> str:
     """The instance in words from its table row; fields its model does not use are empty there."""
     def given(v: Any) -> bool:
@@ -201,6 +206,9 @@ def _instance_line(r: Any) -> str:
                               ("unit order cost", "unit_order_cost", bool(getattr(r, "unit_order_cost", 0))),
                               ("case pack", "case_pack", getattr(r, "case_pack", 1) != 1)):
         v = getattr(r, key, None)
+        pmf = getattr(r, "lead_time_pmf", None)
+        if key == "lead_time" and isinstance(pmf, str) and pmf:  # random: its pmf and mean
+            v = f"{pmf} (mean {_plain(r.lead_time)})"
         if given(v) and shown:
             parts.append(f"{label} {v:g}" if isinstance(v, float) else f"{label} {v}")
     for key in MODEL_KEYS:  # the model's own keys (stage lead times, shelf life, ...)

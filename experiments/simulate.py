@@ -2,7 +2,9 @@
 
 Demand in period t of replication r comes from the uniform U[t, r] of a generator seeded with
 `seed`, drawn period by period; so every policy evaluated with the same seed on an instance
-faces the same demand streams, and a run is reproducible bit for bit. The work (period-steps)
+faces the same demand streams, and a run is reproducible bit for bit. A model's other random
+inputs (a random lead time's cut-off) come from streams of their own (`random_inputs.py`), so
+the demand stream of a seed is the same as with a fixed lead time. The work (period-steps)
 and memory are estimated from the arguments and refused over their limits before anything runs.
 """
 from __future__ import annotations
@@ -17,6 +19,7 @@ from scipy import stats
 from invbench.baselines.policy import as_policy, checked_orders
 from invbench.envs.inventory_env import check_start
 from invbench.envs.errors import BudgetError, SpecError
+from invbench.envs.random_inputs import PeriodInputs
 from invbench.envs.spec import load_spec
 
 #: Default limit on replications x (warm-up + periods). One billion period-steps take a few
@@ -129,6 +132,8 @@ def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 
     pol = as_policy(policy)
     model = spec.model_def
     rng = np.random.default_rng(seed)
+    inputs = PeriodInputs(spec)
+    input_rngs = inputs.streams(seed)
     state = np.repeat(check_start(spec, start), R, axis=0)
     names = model.cost_parts
     acc = np.zeros((R, len(names)))
@@ -143,7 +148,7 @@ def simulate(spec: Any, policy: Any, *, replications: int = 100, periods: int = 
         orders, n = checked_orders(spec, pol.act(state.astype(np.float32)), state, clip=clip)
         clipped += n
         demand = demand_stream(spec, rng, R)
-        state, parts = model.step(spec, state, orders, demand)
+        state, parts = model.step(spec, state, orders, demand, **inputs.draw(input_rngs, R))
         if discounted:
             acc += weight * np.column_stack([parts.costs[k] for k in names])
             weight *= spec.discount

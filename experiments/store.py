@@ -32,7 +32,8 @@ from .cellfile import DamagedCell, decode_cell, encode_cell
 from .suite import Cell, Suite, load_suite
 from .tables import Comparison, compare_results, read_table, write_results  # noqa: F401  (re-exported)
 
-INSTANCE_COLUMNS = ["suite", "instance", "model", "lead_time", "holding_cost", "shortage_cost",
+#: lead_time: the fixed lead time, or the mean of a random one (whose pmf is in lead_time_pmf)
+INSTANCE_COLUMNS = ["suite", "instance", "model", "lead_time", "lead_time_pmf", "holding_cost", "shortage_cost",
                     "unit_order_cost", "fixed_order_cost", "order_cap_units", "case_pack",
                     "discount", "demand", "demand_mean", *MODEL_KEYS]
 POLICY_COLUMNS = ["policy", "kind", "policy_name", "params", "seed"]
@@ -255,7 +256,9 @@ def build_table(records: list[dict[str, Any]], cells: dict[str, Cell]) -> pd.Dat
         row["suite"] = r.get("suite")
         row["instance"] = r.get("instance")
         if spec is not None:
-            row.update(model=spec.model, lead_time=spec.lead_time, holding_cost=spec.holding_cost,
+            law = spec.lead_time_law
+            row.update(model=spec.model, lead_time=spec.lead_time if law is None else law.mean,
+                       lead_time_pmf=None if law is None else law.describe(), holding_cost=spec.holding_cost,
                        shortage_cost=spec.shortage_cost, unit_order_cost=spec.unit_order_cost,
                        fixed_order_cost=spec.fixed_order_cost, order_cap_units=spec.order_cap_units,
                        case_pack=spec.case_pack, discount=spec.discount,

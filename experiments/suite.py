@@ -142,8 +142,10 @@ class Suite:
             for spec in self.instances:
                 if p.models and spec.model not in p.models:
                     continue
-                if p.kind == "classical" and not _supports(p.name, spec.model):
-                    continue  # the policy is not defined for this model
+                if p.kind == "classical" and not _supports(p.name, spec):
+                    continue  # the policy is not defined for this model or lead time
+                if p.kind == "optimum" and spec.model_def.simulation_only(spec):
+                    continue  # no exact optimum (e.g. lead times that may cross)
                 for seed in p.seeds:
                     out.append(Cell(self.name, spec, p, seed, ev))
         return out
@@ -382,6 +384,6 @@ def _default_label(kind: str, name: str, agent: str, function: str, params: Any)
     return name
 
 
-def _supports(policy: str, model: str) -> bool:
+def _supports(policy: str, model: "str | InstanceSpec") -> bool:
     from invbench.baselines.policies.registry import supports  # late: keeps loading light
     return supports(policy, model)

@@ -150,7 +150,7 @@ def classical(policy: str, params: Mapping[str, Any] | None, specs: Iterable[Any
         if key(k) != k:  # not a plain word: no parameter is called that
             raise SpecError(f"{where}.params.{key(k)}: unknown parameter for {policy}")
     for spec in specs:
-        if not supports(policy, spec.model):
+        if not supports(policy, spec):
             continue  # never paired with this instance (see Suite.cells)
         try:
             make_policy(spec, policy, params)

@@ -20,7 +20,7 @@ def run_demo(progress: bool = False) -> int:
         spec = load_spec(raw)
         opt = solve(spec)
         print()
-        print(f"== {spec.label}: {spec.model.replace('_', ' ')}, lead time {spec.lead_time}, "
+        print(f"== {spec.label}: {spec.model.replace('_', ' ')}, lead time {spec.lead_time_text}, "
               f"demand {spec.demand.describe()}, h={spec.holding_cost:g}, p={spec.shortage_cost:g}, "
               f"K={spec.fixed_order_cost:g}, case pack {spec.case_pack}")
         print(f"   exact optimum {opt.cost:.4f} per period, certified to [{opt.lower:.4f}, {opt.upper:.4f}], "

@@ -102,7 +102,7 @@ def choice_suite(name: str, specs: Sequence[InstanceSpec], policies: Sequence[st
         else:
             pairs.append((i, 0))
         for j, e in enumerate(entries[1:], start=1):
-            if e.kind != "classical" or supports(e.name, spec.model):
+            if e.kind != "classical" or supports(e.name, spec):
                 pairs.append((i, j))
     suite = PairedSuite(name, description, tuple(specs), tuple(entries), {}, invented=False, pairs=tuple(pairs))
     return suite, no_optimum

@@ -16,10 +16,11 @@ from hypothesis import strategies as st
 import invbench  # noqa: F401  (registers the env ids)
 from invbench.baselines.exact import solve
 from invbench.baselines.mdp import build_mdp
-from invbench.baselines.policies.registry import make_policy, policies_for
+from invbench.baselines.policies.registry import make_policy, policies_for_instance
 from invbench.baselines.policy_eval import evaluate_exact
 from invbench.envs.models import MODELS
 from invbench.envs.models.exact_space import ExactSpace
+from invbench.envs.random_inputs import PeriodInputs
 from invbench.envs.spec import spec_from_dict
 from invbench.experiments.simulate import simulate
 
@@ -29,24 +30,34 @@ FAST = [n for n in NAMES if type(MODELS[n].exact_space(spec_from_dict({"model": 
                                  ).fast_build is not ExactSpace.fast_build]
 
 
-def example(name: str, **changes):
-    return spec_from_dict({"model": name, **MODELS[name].example, **changes})
+#: every model's example, and each named variant it declares (e.g. a random lead time)
+CASES = [n for n in NAMES] + [f"{n}:{v}" for n in NAMES for v in MODELS[n].variants]
 
 
-@pytest.mark.parametrize("name", NAMES)
+def example(case: str, **changes):
+    name, _, variant = case.partition(":")
+    base = MODELS[name].variants[variant] if variant else MODELS[name].example
+    return spec_from_dict({"model": name, **base, **changes})
+
+
+def model_of(case: str):
+    return MODELS[case.partition(":")[0]]
+
+
+@pytest.mark.parametrize("name", CASES)
 def test_gymnasium_and_sb3_checkers_pass(name):
     from gymnasium.utils.env_checker import check_env
     from stable_baselines3.common.env_checker import check_env as sb3_check
-    env = gym.make(MODELS[name].env_id, spec=example(name))
+    env = gym.make(model_of(name).env_id, spec=example(name))
     check_env(env.unwrapped, skip_render_check=True)  # Gymnasium's own checker
     sb3_check(env.unwrapped, warn=False)  # stable-baselines3's checker
 
 
-@pytest.mark.parametrize("name", NAMES)
+@pytest.mark.parametrize("name", CASES)
 def test_single_env_equals_vector_env_on_the_same_seed(name):
     spec = example(name)
-    env = gym.make(MODELS[name].env_id, spec=spec, episode_length=50)
-    venv = gym.make_vec(MODELS[name].env_id, num_envs=1, vectorization_mode="vector_entry_point",
+    env = gym.make(model_of(name).env_id, spec=spec, episode_length=50)
+    venv = gym.make_vec(model_of(name).env_id, num_envs=1, vectorization_mode="vector_entry_point",
                         spec=spec, episode_length=50)
     obs, _ = env.reset(seed=11)
     vobs, _ = venv.reset(seed=11)
@@ -58,19 +69,21 @@ def test_single_env_equals_vector_env_on_the_same_seed(name):
         assert np.array_equal(obs, vobs[0]) and r == vr[0]
 
 
-@pytest.mark.parametrize("name", NAMES)
+@pytest.mark.parametrize("name", CASES)
 @settings(max_examples=60, deadline=None)
 @given(data=st.data())
 def test_units_are_conserved_and_costs_nonnegative(name, data):
     spec = example(name, max_order=6)
-    model = MODELS[name]
+    model = model_of(name)
     B = data.draw(st.integers(1, 8))
     low = np.maximum(model.state_low(spec), -10).astype(int)
     state = np.array([[data.draw(st.integers(int(lo), 12)) for lo in low] for _ in range(B)], dtype=np.int64)
     sizes = [s.sizes_units for s in spec.order_slots]
     action = np.array([[data.draw(st.sampled_from(list(sz))) for sz in sizes] for _ in range(B)], dtype=np.int64)
     demand = np.array([data.draw(st.integers(0, 15)) for _ in range(B)], dtype=np.int64)
-    nxt, out = model.step(spec, state, action, demand)
+    inputs = PeriodInputs(spec)  # the model's other random inputs, from a drawn seed
+    extra = inputs.draw(inputs.streams(data.draw(st.integers(0, 2**32))), B)
+    nxt, out = model.step(spec, state, action, demand, **extra)
     # units in = units out (common practice): the position moves by the orders minus what left
     assert np.array_equal(model.position(spec, nxt),
                           model.position(spec, state) + model.units_in(out, action) - model.units_out(out, demand))
@@ -93,10 +106,10 @@ def test_fast_build_equals_straightforward_build(name):
     np.testing.assert_allclose(slow.cost_parts, fast.cost_parts, rtol=0, atol=1e-12)
 
 
-@pytest.mark.parametrize("name", NAMES)
+@pytest.mark.parametrize("name", CASES)
 def test_exact_evaluation_of_a_classical_policy_is_inside_the_simulation_ci(name):
     spec = example(name)
-    pol = make_policy(spec, policies_for(name)[0])  # the model's first classical policy, optimised
+    pol = make_policy(spec, policies_for_instance(spec)[0])  # the first classical policy, optimised
     ex = evaluate_exact(spec, pol)
     sim = simulate(spec, pol, replications=60, periods=2000, warmup=200, seed=3)
     # 95 % CI with a 3-half-width margin, so only a real disagreement fails
@@ -104,14 +117,14 @@ def test_exact_evaluation_of_a_classical_policy_is_inside_the_simulation_ci(name
     assert abs(sum(ex.parts.values()) - ex.cost) <= 1e-9 * max(ex.cost, 1)
 
 
-@pytest.mark.parametrize("name", NAMES)
+@pytest.mark.parametrize("name", CASES)
 def test_optimum_is_no_worse_than_any_classical_policy(name):
     spec = example(name)
     opt = solve(spec)
     assert opt.converged and opt.gap <= 1e-6
     ev = evaluate_exact(spec, opt.policy)
     assert abs(ev.cost - opt.cost) <= 1e-6 * opt.cost  # the table evaluates to its certified cost
-    for pname in policies_for(name):
+    for pname in policies_for_instance(spec):
         try:
             pol = make_policy(spec, pname)
         except invbench.SpecError:
@@ -120,7 +133,7 @@ def test_optimum_is_no_worse_than_any_classical_policy(name):
         assert opt.lower <= cost * (1 + 1e-9), (pname, cost, opt.lower)
 
 
-@pytest.mark.parametrize("name", NAMES)
+@pytest.mark.parametrize("name", CASES)
 def test_rvi_agrees_with_lp_on_a_tiny_instance(name):
     # HiGHS (scipy.optimize.linprog) solves the average-cost LP of the same finite MDP
     spec = example(name)

@@ -11,7 +11,7 @@ LS = InstanceSpec("lost_sales", poisson(4.0), lead_time=1, case_pack=2, max_orde
 def test_names_and_descriptions():
     assert policy_names() == ["base_stock", "s_S", "constant_order", "capped_base_stock", "pil", "myopic",
                               "bsp_low_ew", "single_regular", "single_expedited", "dual_index", "capped_dual_index",
-                              "tailored_base_surge", "echelon_base_stock", "shang_song", "installation_base_stock"]
+                              "tailored_base_surge", "echelon_base_stock", "shang_song", "installation_base_stock", "pout"]
     desc = policy_descriptions()
     assert set(desc) == set(policy_names()) and all(desc[n] and "\n" not in desc[n] for n in desc)
     assert all(POLICIES[n].name == n for n in policy_names())

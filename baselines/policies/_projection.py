@@ -6,22 +6,42 @@ on-hand under lost sales, the net inventory under backorders) just before this p
 would be added; `project_states` keeps the whole state (perishable stock by age) and the
 expected flows of those L periods (e.g. units outdated). Used by the PIL, myopic and
 BSP-low-EW policies; all cache results per distinct state.
+
+With a random lead time (orders in sequence) the state is stepped over the mean lead time
+rounded to whole periods, against demand and the model's arrival cut-off jointly, so the orders
+in transit come in as the model brings them; the whole state is then kept while projecting,
+since equal stock levels no longer mean equal pipelines.
 """
 from __future__ import annotations
 
 import numpy as np
 
 from invbench.envs.dynamics import step_fn
+from invbench.envs.random_inputs import JointOutcomes, period_outcomes
 from invbench.envs.spec import InstanceSpec
 
 #: Rows stepped at once (states x stock levels x demand values) to bound temporary memory.
 _ROWS = 2_000_000
 
 
+def projection_periods(spec: InstanceSpec) -> int:
+    """Periods until an order placed now arrives: L, or the mean of a random L rounded."""
+    if spec.lead_time_law is None:
+        return spec.lead_time
+    return int(np.floor(spec.mean_lead_time + 0.5))
+
+
 def project_levels(spec: InstanceSpec, states: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Triplets (owner, level, prob): for each input state `owner`, the pmf of its stock level
     when an order placed now arrives. Rows of one owner are contiguous."""
     states = np.asarray(states, dtype=np.int64)
+    if spec.lead_time_law is not None and len(states):
+        owner, rows, prob, _ = project_states(spec, states)
+        level = rows[:, 0]
+        lo = int(level.min())
+        keys, first, inv = np.unique(owner * (int(level.max()) - lo + 1) + (level - lo), return_index=True,
+                                     return_inverse=True)
+        return owner[first], level[first], np.bincount(inv.reshape(-1), weights=prob, minlength=len(keys))
     if spec.lead_time == 0 or len(states) == 0:
         idx = np.arange(len(states))
         return idx, states[:, 0].copy(), np.ones(len(states))
@@ -65,17 +85,16 @@ def project_states(spec: InstanceSpec, states: np.ndarray, flows: tuple[str, ...
     Rows of one owner are contiguous; with L = 0 the rows are the states and the totals zero."""
     states = np.asarray(states, dtype=np.int64)
     expected = {f: np.zeros(len(states)) for f in flows}
-    if spec.lead_time == 0 or len(states) == 0:
+    periods = projection_periods(spec)
+    if periods == 0 or len(states) == 0:
         return np.arange(len(states)), states.copy(), np.ones(len(states)), expected
     step = step_fn(spec)
-    pmf = spec.demand.pmf().normalized()
-    dvals = np.flatnonzero(pmf > 0)
-    dprob = pmf[dvals]
-    chunk = max(1, _ROWS // max(len(dvals) ** min(spec.lead_time, 3), 1))
+    outcomes = period_outcomes(spec, spec.demand.pmf().normalized())  # demand x any cut-off
+    chunk = max(1, _ROWS // max(len(outcomes) ** min(periods, 3), 1))
     parts = []
     for i in range(0, len(states), chunk):
-        owner, rows, prob, exp_i = _project_state_block(step, states[i:i + chunk], dvals, dprob,
-                                                        spec.lead_time, flows)
+        owner, rows, prob, exp_i = _project_state_block(step, states[i:i + chunk], outcomes,
+                                                        periods, flows)
         parts.append((owner + i, rows, prob))
         for f in flows:
             expected[f][i:i + chunk] = exp_i[f]
@@ -83,15 +102,16 @@ def project_states(spec: InstanceSpec, states: np.ndarray, flows: tuple[str, ...
     return owner, rows, prob, expected
 
 
-def _project_state_block(step, states, dvals, dprob, lead_time: int, flows: tuple[str, ...]):
+def _project_state_block(step, states, outcomes: JointOutcomes, periods: int, flows: tuple[str, ...]):
     owner = np.arange(len(states))
     rows, prob = states, np.ones(len(states))
     expected = {f: np.zeros(len(states)) for f in flows}
-    k = len(dvals)
-    for _ in range(lead_time):
+    k = len(outcomes)
+    for _ in range(periods):
         rep = np.repeat(np.arange(len(rows)), k)
-        nxt, out = step(rows[rep], np.zeros(len(rep), dtype=np.int64), np.tile(dvals, len(rows)))
-        w = prob[rep] * np.tile(dprob, len(rows))
+        dd, extra, ww = outcomes.tiled(len(rows))
+        nxt, out = step(rows[rep], np.zeros(len(rep), dtype=np.int64), dd, **extra)
+        w = prob[rep] * ww
         own = owner[rep]
         for f in flows:
             expected[f] += np.bincount(own, weights=w * out.flows[f], minlength=len(states))

@@ -1,6 +1,8 @@
 """Parameter search for policies whose cost has no formula: every candidate is scored by exact
 evaluation (`invbench.baselines.policy_eval.evaluate_exact`), results are cached, and a local
-pattern search on an integer grid keeps the number of evaluations small.
+pattern search on an integer grid keeps the number of evaluations small. An instance that has
+no exact face (lead times that may cross) is scored by simulation instead, every candidate
+on the same random numbers (`SEARCH_SIMULATION`), so that their differences are not noise.
 """
 from __future__ import annotations
 
@@ -16,6 +18,10 @@ from invbench.envs.spec import InstanceSpec
 from ._common import Optimum
 
 Point = tuple[int, ...]
+
+#: Simulation used to score candidates on simulated-only instances: one seed for all (common
+#: random numbers); a few seconds per candidate at most.
+SEARCH_SIMULATION = {"replications": 40, "periods": 2000, "warmup": 200, "seed": 12345}
 
 
 class ExactScorer:
@@ -71,11 +77,15 @@ class ExactScorer:
         if res is None:
             reason = self.failures.get(tuple(point), "no candidate could be evaluated")
             raise BudgetError(f"policy search: no candidate with a finite evaluated cost ({reason})")
-        return Optimum(method="exact_search", cost=float(res.cost), parts=dict(res.parts),
+        method = "simulation_search" if getattr(res, "method", "") == "simulated" else "exact_search"
+        return Optimum(method=method, cost=float(res.cost), parts=dict(res.parts),
                        evaluations=self.evaluations, note=note, extra=extra)
 
 
 def _plain_exact(spec: InstanceSpec, policy: Any, max_states: int | None) -> Any:
+    if spec.model_def.simulation_only(spec):
+        from invbench.experiments.simulate import simulate
+        return simulate(spec, policy, **SEARCH_SIMULATION)
     from invbench.baselines.policy_eval import evaluate_exact  # heavy; only when searching
 
     kw = {} if max_states is None else {"max_states": max_states}

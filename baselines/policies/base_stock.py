@@ -26,8 +26,11 @@ def analytic_applies(spec: InstanceSpec) -> bool:
     """True when the order cap never binds in steady state, so the formula below is exact.
 
     In steady state the order is what the last period's demand took away, plus at most
-    case_pack - 1 units carried over by the rounding.
+    case_pack - 1 units carried over by the rounding. With lead times that may cross the
+    formula does not hold (orders overtake), so it never applies there.
     """
+    if spec.lead_time_kind == "crossing":
+        return False
     dmax = spec.demand.pmf().support_max
     q = spec.case_pack
     return ((q - 1 + dmax) // q) * q <= spec.order_cap_units
@@ -79,6 +82,7 @@ class BaseStockPolicy(ClassicalPolicy):
 
     name = "base_stock"
     models = ("lost_sales", "backorder", "perishable")
+    lead_time_kinds = ("fixed", "in_sequence", "crossing")
 
     def __init__(self, spec: InstanceSpec, S: int) -> None:
         self.spec = spec
@@ -100,7 +104,8 @@ class BaseStockPolicy(ClassicalPolicy):
     def optimize(cls, spec: InstanceSpec, progress: bool = False,
                  max_states: int | None = None) -> "BaseStockPolicy":
         """Best S. Backorders (cap not binding): the fractile/convex-window level, analytic
-        cost. Otherwise a local search on S from the fractile level with exact evaluation:
+        cost (a random lead time in sequence: G on demand over L + 1 periods mixed over L,
+        exact since the long-run cost is the mean of G over the position). Otherwise a local search on S from the fractile level with exact evaluation:
         the lost-sales cost in S is taken as unimodal (common practice)."""
         if spec.model == "backorder" and analytic_applies(spec):
             S = best_backorder_level(spec)

@@ -27,6 +27,7 @@ class CappedBaseStockPolicy(ClassicalPolicy):
 
     name = "capped_base_stock"
     models = ("lost_sales", "backorder", "perishable")
+    lead_time_kinds = ("fixed", "in_sequence")
 
     def __init__(self, spec: InstanceSpec, S: int, r: int) -> None:
         self.spec = spec
@@ -80,7 +81,7 @@ class CappedBaseStockPolicy(ClassicalPolicy):
             # one standard deviation, where Xin's good caps sit, below the flat region where r
             # exceeds every steady-state order and changes nothing.
             k_mid = min(k_free, max(1, int(math.ceil((spec.demand.mean + math.sqrt(spec.demand.var)) / q))))
-            s_step = max(1, int(math.sqrt(spec.demand.var * (spec.lead_time + 1)) // 2))
+            s_step = max(1, int(math.sqrt(spec.demand.var * (spec.mean_lead_time + 1)) // 2))
             best_S: dict[int, int] = {}
 
             def profile(x: tuple[int, ...]) -> float:

@@ -42,6 +42,7 @@ class ConstantOrderPolicy(ClassicalPolicy):
 
     name = "constant_order"
     models = ("lost_sales", "backorder", "perishable")
+    lead_time_kinds = ("fixed", "in_sequence")
 
     def __init__(self, spec: InstanceSpec, r: int) -> None:
         self.spec = spec

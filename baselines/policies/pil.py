@@ -11,6 +11,10 @@ Backorders: the projection is linear, position minus mean demand over L periods,
 base-stock with S = target + mean lead-time demand + case_pack - 0.5 (rounded); `optimize`
 takes its target from the base-stock optimum. Lost sales: best target by exact evaluation on a
 grid of quarter units.
+
+Random lead time (orders in sequence): the projection runs over the mean lead time rounded to
+whole periods, the pipeline arriving by the model's own cut-off (`_projection`); the target is
+searched as for lost sales, for backorders too (the projection is no longer linear).
 """
 from __future__ import annotations
 
@@ -44,6 +48,7 @@ class PILPolicy(ClassicalPolicy):
 
     name = "pil"
     models = ("lost_sales", "backorder")
+    lead_time_kinds = ("fixed", "in_sequence")
 
     def __init__(self, spec: InstanceSpec, target: float) -> None:
         self.spec = spec
@@ -79,7 +84,7 @@ class PILPolicy(ClassicalPolicy):
         from the base-stock optimum (see the module docstring)."""
         from .base_stock import BaseStockPolicy
 
-        if spec.model == "backorder":
+        if spec.model == "backorder" and spec.lead_time_law is None:
             base = BaseStockPolicy.optimize(spec, progress=progress, max_states=max_states)
             mu_L = spec.lead_time * normalized_mean(spec)
             # Rounded: the float noise of mu_L (~1e-9) would only clutter the reported target.

@@ -18,6 +18,7 @@ from .dual_index import DualIndexPolicy
 from .echelon import EchelonBaseStockPolicy, InstallationBaseStockPolicy, ShangSongPolicy
 from .myopic import MyopicPolicy
 from .pil import PILPolicy
+from .pout import POUTPolicy
 from .s_s import SSPolicy
 from .single_source import SingleExpeditedPolicy, SingleRegularPolicy
 from .tailored_base_surge import TailoredBaseSurgePolicy
@@ -38,6 +39,7 @@ POLICIES: dict[str, type[PolicyBase]] = {
     "echelon_base_stock": EchelonBaseStockPolicy,
     "shang_song": ShangSongPolicy,
     "installation_base_stock": InstallationBaseStockPolicy,
+    "pout": POUTPolicy,
 }
 
 _DESCRIPTIONS: dict[str, str] = {
@@ -45,7 +47,8 @@ _DESCRIPTIONS: dict[str, str] = {
     "s_S": "when the inventory position is <= s, order up to S (params: s, S)",
     "constant_order": "order r units every period (params: r; lost sales only when optimised)",
     "capped_base_stock": "order up to S, at most r units a period (params: S, r)",
-    "pil": "order so the expected stock when the order arrives reaches the target (params: target)",
+    "pil": "order so the expected stock when the order arrives reaches the target (params: target); "
+           "random lead time: projected over the mean lead time",
     "myopic": "order minimising the expected cost of the period the order arrives in (no params)",
     "bsp_low_ew": "perishables: order up to S1 (below b) or S2 on the position less expected waste "
                   "(Haijema & Minner 2019; params: S1, S2, b)",
@@ -58,6 +61,8 @@ _DESCRIPTIONS: dict[str, str] = {
     "shang_song": "serial chain: echelon base-stock at the Shang-Song newsvendor-bound levels (no params)",
     "installation_base_stock": "serial chain: stage j orders up to r[j] on its own stock, transit and "
                                "the order from below (params: r, a list)",
+    "pout": "proportional order-up-to: mean demand plus (S - mean demand - position) / T "
+            "(Disney et al. 2016; params: S, T >= 1; T = 1 is base-stock)",
 }
 
 
@@ -76,10 +81,18 @@ def policy_class(name: str) -> type[PolicyBase]:
     return POLICIES[name]
 
 
-def supports(name: str, model: str) -> bool:
-    """Whether the policy `name` is defined for `model`."""
+def supports(name: str, model: str | InstanceSpec) -> bool:
+    """Whether the policy `name` is defined for `model` (a model name, or an instance: then its
+    kind of lead time counts too)."""
     cls = policy_class(name)
+    if isinstance(model, InstanceSpec):
+        return supports(name, model.model) and model.lead_time_kind in cls.lead_time_kinds
     return not cls.models or model in cls.models
+
+
+def policies_for_instance(spec: InstanceSpec) -> list[str]:
+    """Names of the classical policies defined for this instance (its model and lead time)."""
+    return [n for n in POLICIES if supports(n, spec)]
 
 
 def policies_for(model: str) -> list[str]:
@@ -95,6 +108,10 @@ def make_policy(spec: InstanceSpec, name: str, params: Mapping[str, Any] | None 
     if not supports(name, spec.model):
         raise SpecError(f"policy: {name} is not defined for the {spec.model} model "
                         f"(policies for it: {', '.join(policies_for(spec.model))})")
+    if not supports(name, spec):
+        kind = spec.lead_time_kind.replace("_", " ")
+        raise SpecError(f"policy: {name} is not defined for a {kind} lead time "
+                        f"(policies for this instance: {', '.join(policies_for_instance(spec))})")
     if params is not None and not isinstance(params, Mapping):
         raise SpecError(f"param: must be a table of parameter values for {name}, got {params!r}")
     if not params:

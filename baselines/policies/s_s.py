@@ -52,6 +52,7 @@ class SSPolicy(ClassicalPolicy):
 
     name = "s_S"
     models = ("lost_sales", "backorder")
+    lead_time_kinds = ("fixed", "in_sequence")
 
     def __init__(self, spec: InstanceSpec, s: int, S: int) -> None:
         self.spec = spec

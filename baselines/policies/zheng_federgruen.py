@@ -14,6 +14,7 @@ import numpy as np
 
 from invbench.envs.models.backorder.lead_time_cost import lead_time_cost
 from invbench.envs.errors import BudgetError
+from invbench.envs.newsvendor import lead_time_demand_pmf
 from invbench.envs.spec import InstanceSpec
 
 from ._common import critical_ratio, fractile
@@ -84,7 +85,7 @@ class ZFResult:
 def zheng_federgruen(spec: InstanceSpec) -> ZFResult:
     """Optimal (s, S) for the backorder model (order up to S when the position is <= s)."""
     K = spec.fixed_order_cost
-    ystar = fractile(spec.demand.lead_time_pmf(spec.lead_time + 1).cdf(), critical_ratio(spec))
+    ystar = fractile(lead_time_demand_pmf(spec).cdf(), critical_ratio(spec))
     dmax = spec.demand.pmf().support_max
     G = _LazyG(spec, ystar, 4 * dmax + 8)
     # G is convex; step off the fractile to the exact minimiser.

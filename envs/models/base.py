@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Any, Sequence
 import numpy as np
 
 if TYPE_CHECKING:  # the spec imports the model registry; type-only import breaks the cycle
+    from invbench.envs.random_inputs import InputLaw
     from invbench.envs.spec import InstanceSpec
     from .exact_space import ExactSpace
 
@@ -119,6 +120,10 @@ class InventoryModel:
     departing: tuple[str, ...] = ("sales",)
     #: a tiny instance (spec dict without "model") for the conformance test and examples
     example: dict[str, Any] = {}
+    #: more named instances the conformance test runs too (e.g. a random lead time)
+    variants: dict[str, dict[str, Any]] = {}
+    #: `lead_time` may be a pmf table (envs/lead_time.py); the step then takes its arrivals input
+    random_lead_time: bool = False
 
     # ------------------------------------------------------------------ model: layout
     def check(self, spec: "InstanceSpec") -> None:
@@ -152,13 +157,26 @@ class InventoryModel:
 
     # ------------------------------------------------------------------ model: dynamics
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
-             demand: np.ndarray) -> tuple[np.ndarray, Outcome]:  # model
-        """One period for a batch: (next state [B, n], outcome)."""
+             demand: np.ndarray, **inputs: np.ndarray) -> tuple[np.ndarray, Outcome]:  # model
+        """One period for a batch: (next state [B, n], outcome). `inputs` holds one array per
+        random input other than demand that `random_inputs` declares (none for most models)."""
         raise NotImplementedError
 
     def lead_time_text(self, spec: "InstanceSpec") -> str:
-        """The lead time(s) for a short instance label ("2"); a model with several says them all."""
-        return str(spec.lead_time)
+        """The lead time(s) for a short instance label: "2", "~pmf(0.2,0.5,0.3)" for a random
+        one; a model with several lead times says them all."""
+        law = spec.lead_time_law
+        return spec.lead_time_text if law is None else "~" + spec.lead_time_text.replace(" ", "-")
+
+    def random_inputs(self, spec: "InstanceSpec") -> tuple["InputLaw", ...]:
+        """The period's random inputs besides demand, each independent of demand and of the
+        others (`envs/random_inputs.py`); env, simulator, solver and evaluator draw or sum
+        over them and pass them to `step` by name."""
+        return ()
+
+    def simulation_only(self, spec: "InstanceSpec") -> str:
+        """Why this instance has no exact solve or exact evaluation ("" when it has them)."""
+        return ""
 
     def carrying_cost(self, spec: "InstanceSpec") -> float:
         """Cost per unit per period of stock carried, for first guesses (fractile levels, bounds):

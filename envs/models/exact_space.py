@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from invbench.envs.errors import SpecError
+from invbench.envs.random_inputs import JointOutcomes, period_outcomes
 
 from .state_index import StateCodec, StateIndex
 
@@ -129,8 +130,21 @@ class ExactSpace:
     def demand_pmf(self) -> "DiscretePmf":
         return self.spec.demand.pmf()
 
-    def step(self, states: np.ndarray, actions: np.ndarray, demand: np.ndarray) -> tuple[np.ndarray, "Outcome"]:
-        return self.model.step(self.spec, states, actions, demand)
+    def outcomes(self) -> JointOutcomes:
+        """Every value of the period's random inputs (demand and any other the model declares,
+        e.g. a lead-time cut-off) with its probability: what the MDP build sums over."""
+        return period_outcomes(self.spec, self.demand_pmf().normalized())
+
+    def extra_outcomes(self) -> int:
+        """Joint values of the random inputs besides demand (1 when there are none)."""
+        n = 1
+        for law in self.model.random_inputs(self.spec):
+            n *= len(law.support()[0])
+        return n
+
+    def step(self, states: np.ndarray, actions: np.ndarray, demand: np.ndarray,
+             **inputs: np.ndarray) -> tuple[np.ndarray, "Outcome"]:
+        return self.model.step(self.spec, states, actions, demand, **inputs)
 
     def clip(self, nxt: np.ndarray, b: Bounds) -> np.ndarray:
         """Keep next states inside the space (in place); returns where that changed a row."""

@@ -14,6 +14,14 @@ class BackorderEnv(InventoryEnv):
     costs `shortage_cost`. Stock left at the end of the period costs `holding_cost` per unit.
     Orders cost `unit_order_cost` per unit plus `fixed_order_cost` in a period with an order.
 
+    Random lead time (`lead_time={"pmf": [p0, p1, ...]}`, longest M): as in the lost-sales env,
+    after you order a cut-off A is drawn and every order still out that was placed at least A
+    periods ago arrives before demand (orders never cross; each order's lead time has the pmf;
+    Kaplan 1970). The end-of-period net inventory is then the position after ordering V periods
+    earlier minus the demand of those V + 1 periods, V distributed as the lead time, so
+    base-stock on the position is optimal. `"crossing": True` draws each order's lead time on its
+    own (simulation only).
+
     ## Action Space
     `Discrete(k)`: action i orders `i * case_pack` units, up to the order cap
     (`env.unwrapped.order_sizes_units` maps index to units).
@@ -26,9 +34,14 @@ class BackorderEnv(InventoryEnv):
     | 0     | net inventory (on-hand - backorders) after the receipt  | -inf | inf |
     | i     | units arriving i periods from now (1..L-1)              | 0    | inf |
 
+    Random lead time: length max(M, 1); index 0 is the net inventory plus the order placed M
+    periods ago (it arrives this period for sure), index i = 1..M-1 the order placed M - i
+    periods ago if it is still out.
+
     ## Rewards
     Minus the period cost: holding + backorder penalty + ordering. `info` carries `demand`,
-    `sales` (demand filled at once), `backordered`, `order_units` and the cost parts.
+    `sales` (demand filled at once), `backordered`, `order_units` and the cost parts (random
+    lead time: also `arrived`, the units delivered this period before demand).
 
     ## Starting State
     No stock, no backorders and nothing in transit, unless `start_state` is given.

@@ -2,14 +2,19 @@
 
 With backorders, the end-of-period net inventory in period t + L is y - D[t..t+L], where y is
 the inventory position after ordering in t. So the cost of period t + L is a function G(y) of y
-alone. G is computed by running the model's own step function (with L = 0 and no order) on
-state y against the (L+1)-period demand pmf, so no second copy of the cost rules exists.
+alone. With a random lead time (orders in sequence) the long-run average cost is still the
+mean of G over the positions after ordering, with demand over L + 1 periods mixed over L (see
+`newsvendor.lead_time_demand_pmf`). G is computed by running the model's own step function
+(with L = 0 and no order) on state y against that demand pmf, so no second copy of the cost
+rules exists.
 """
 from __future__ import annotations
 
 import numpy as np
 
 from typing import TYPE_CHECKING
+
+from invbench.envs.newsvendor import lead_time_demand_pmf
 
 if TYPE_CHECKING:
     from invbench.envs.spec import InstanceSpec
@@ -20,7 +25,7 @@ def lead_time_cost(spec: "InstanceSpec", levels: np.ndarray) -> np.ndarray:
     if spec.model != "backorder":
         raise ValueError("lead_time_cost: defined for the backorder model")
     levels = np.asarray(levels, dtype=np.int64).reshape(-1)
-    pmf = spec.demand.lead_time_pmf(spec.lead_time + 1).normalized()
+    pmf = lead_time_demand_pmf(spec).normalized()  # mixed over L when the lead time is random
     once = spec.with_(lead_time=0, unit_order_cost=0.0, fixed_order_cost=0.0)
     d = np.arange(len(pmf), dtype=np.int64)
     y = np.repeat(levels, len(d))

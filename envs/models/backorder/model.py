@@ -5,12 +5,14 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from invbench.envs.newsvendor import order_up_to_level
+from invbench.envs.newsvendor import lead_time_demand_pmf, order_up_to_level
+from invbench.envs.random_inputs import JointOutcomes
 
 from ..base import InventoryModel, Outcome
 from ..exact_space import (Bounds, ExactSpace, SizeEstimate, BYTES_PER_NNZ, BYTES_PER_PAIR,
                            count_simplex_states, eoq_room, simplex_states)
-from ..pipeline import advance, ordering_cost, pipeline_labels, stock_inputs
+from ..pipeline import layout_labels, ordering_cost, receive
+from .. import random_lead_time as rlt
 from ..state_index import StateCodec, StateIndex
 from .lead_time_cost import lead_time_cost
 
@@ -22,41 +24,56 @@ class BackorderModel(InventoryModel):
     name = "backorder"
     env_id = "invbench/Backorder-v0"
     env_entry = "invbench.envs.models.backorder.env:BackorderEnv"
-    title = "single item, backorders, fixed lead time"
+    title = "single item, backorders, fixed or random lead time"
     timing = (
         "As for lost sales, but demand that cannot be met at once is backordered and filled from "
         "later deliveries; the state's first entry is the net inventory (on-hand minus backorders, "
         "negative when backorders wait). Each unit backordered at the end of a period costs "
-        "`shortage_cost`; end-of-period on-hand stock costs `holding_cost` per unit.")
+        "`shortage_cost`; end-of-period on-hand stock costs `holding_cost` per unit. A random lead "
+        "time works as for lost sales (cut-off A, orders never cross; `crossing = true`: drawn per "
+        "order, simulation only); the net inventory at the end of a period is then the position "
+        "after ordering V periods earlier minus the demand of those V + 1 periods, with V "
+        "distributed as the lead time, so base-stock is optimal (Kaplan 1970).")
     stock_then_pipeline = True
+    random_lead_time = True
     shortfall = "backordered"
     signed_level = True
     departing = ()  # the position falls by the whole demand, met now or later
     example = {"lead_time": 1, "holding_cost": 1.0, "shortage_cost": 9.0, "fixed_order_cost": 5.0,
                "demand": {"distribution": "poisson", "mean": 2.0}}
+    variants = {"random_lead_time": {**example, "lead_time": {"pmf": [0.3, 0.4, 0.3]}}}
 
     def units_out(self, outcome: Outcome, demand: np.ndarray) -> np.ndarray:
         return np.asarray(demand, dtype=np.int64)
 
     def state_labels(self, spec: "InstanceSpec") -> list[str]:
-        return pipeline_labels("net inventory (on-hand - backorders) after the receipt", max(spec.lead_time, 1))
+        return layout_labels(spec, "net inventory (on-hand - backorders) after the receipt"
+                             if spec.lead_time_law is None else "net inventory (on-hand - backorders)")
+
+    def random_inputs(self, spec: "InstanceSpec"):
+        return rlt.arrival_inputs(spec)
+
+    def simulation_only(self, spec: "InstanceSpec") -> str:
+        return rlt.simulation_only(spec)
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
-             demand: np.ndarray) -> tuple[np.ndarray, Outcome]:
-        L = spec.lead_time
-        state, order, demand, available = stock_inputs(state, action, demand, L)
-        end = available - demand
+             demand: np.ndarray, **inputs: np.ndarray) -> tuple[np.ndarray, Outcome]:
+        r = receive(spec, state, action, demand, inputs)
+        end = r.available - r.demand
         # Sales: this period's demand met at once from stock (the fill); the rest waits.
-        sales = np.minimum(np.maximum(available, 0), demand)
+        sales = np.minimum(np.maximum(r.available, 0), r.demand)
         backordered = np.maximum(-end, 0)
-        nxt, received = advance(state, order, end, L)
+        nxt, received = r.advance(end)
         costs = {"holding": spec.holding_cost * np.maximum(end, 0), "shortage": spec.shortage_cost * backordered,
-                 "ordering": ordering_cost(order, spec.unit_order_cost, spec.fixed_order_cost)}
+                 "ordering": ordering_cost(r.order, spec.unit_order_cost, spec.fixed_order_cost)}
         return nxt, Outcome(costs, {"sales": sales, "backordered": backordered, "end_level": end,
-                                    "received": received})
+                                    "received": received, **r.flows})
 
     def exact_space(self, spec: "InstanceSpec", full_pipeline: bool = False) -> ExactSpace:
-        return BackorderFullSpace(self, spec) if full_pipeline else BackorderPositionSpace(self, spec)
+        # Random lead time, discounted: the position reduction is for the average cost only.
+        if full_pipeline or (spec.lead_time_law is not None and spec.discount < 1):
+            return BackorderFullSpace(self, spec)
+        return BackorderPositionSpace(self, spec)
 
 
 def _initial_bounds(spec: "InstanceSpec") -> Bounds:
@@ -97,6 +114,10 @@ class BackorderPositionSpace(ExactSpace):
         once = self.spec.with_(lead_time=0)
         return self.model.step(once, states, actions, demand)
 
+    def outcomes(self) -> JointOutcomes:
+        """The position moves by the order and one period's demand alone, whatever the lead time."""
+        return JointOutcomes.of_demand(self.demand_pmf().normalized())
+
     def clip(self, nxt: np.ndarray, b: Bounds) -> np.ndarray:
         below = nxt[:, 0] < b.lower
         nxt[:, 0] = np.maximum(nxt[:, 0], b.lower)
@@ -105,7 +126,9 @@ class BackorderPositionSpace(ExactSpace):
     def pair_costs(self, states, pair_state, pair_action, costs):
         spec = self.spec
         y = states[pair_state, 0] + pair_action[:, 0]
-        beta_l = spec.discount ** spec.lead_time
+        # discounted: the cost of period t + L, seen from t (fixed L; a random lead time is
+        # solved on the full space when discounted, see BackorderModel.exact_space)
+        beta_l = 1.0 if spec.discount == 1 else spec.discount ** spec.lead_time
         g = lead_time_cost(spec, y) * beta_l
         costs[:, 0] = lead_time_cost(spec.with_(shortage_cost=0.0), y) * beta_l
         costs[:, 1] = g - costs[:, 0]
@@ -113,7 +136,7 @@ class BackorderPositionSpace(ExactSpace):
 
     def truncation_mass(self) -> float:
         spec = self.spec
-        return float(max(spec.demand.lead_time_pmf(spec.lead_time + 1).truncation_mass,
+        return float(max(lead_time_demand_pmf(spec).truncation_mass,
                          spec.demand.pmf().truncation_mass))
 
     def estimate(self, b: Bounds) -> SizeEstimate:
@@ -165,7 +188,7 @@ class BackorderFullSpace(ExactSpace):
 
     def estimate(self, b: Bounds) -> SizeEstimate:
         n, q, span = self.dim, self.spec.case_pack, b.upper - b.lower
-        support = int(np.count_nonzero(self.demand_pmf().probs))
+        support = int(np.count_nonzero(self.demand_pmf().probs)) * self.extra_outcomes()
         states = count_simplex_states(n, span)
         pairs = count_simplex_states(n + 1, span) // q + states
         transitions = pairs * support

@@ -11,7 +11,8 @@ from invbench.envs.newsvendor import order_up_to_level
 from ..base import InventoryModel, Outcome
 from ..exact_space import (PEAK_BYTES_PER_NNZ, Bounds, ExactSpace, SizeEstimate, count_simplex_states,
                            eoq_room)
-from ..pipeline import advance, ordering_cost, pipeline_labels, stock_inputs
+from ..pipeline import layout_labels, ordering_cost, receive
+from .. import random_lead_time as rlt
 
 if TYPE_CHECKING:
     from invbench.baselines.mdp import FiniteMDP
@@ -22,38 +23,56 @@ class LostSalesModel(InventoryModel):
     name = "lost_sales"
     env_id = "invbench/LostSales-v0"
     env_entry = "invbench.envs.models.lost_sales.env:LostSalesEnv"
-    title = "single item, lost sales, fixed lead time"
+    title = "single item, lost sales, fixed or random lead time"
     timing = (
         "At the start of a period the order placed L periods ago arrives; the state is observed "
         "(on-hand stock and the orders in transit) and an order is placed, which arrives L periods "
         "later before that period's demand (L = 0: at once). Demand is met from stock; what cannot "
         "be met is lost at `shortage_cost` per unit. End-of-period stock costs `holding_cost` per "
-        "unit; an order costs `unit_order_cost` per unit plus `fixed_order_cost` when positive.")
+        "unit; an order costs `unit_order_cost` per unit plus `fixed_order_cost` when positive. "
+        "A random lead time `lead_time = { pmf = [p0, p1, ...] }` (longest M): the state is the "
+        "on-hand stock plus the order now M periods old (it arrives for sure) and the orders still "
+        "out by age; after the order is placed a cut-off A is drawn and every order placed at least "
+        "A periods ago arrives before demand (the new one too when A = 0), so orders never cross "
+        "and each order's lead time has the given pmf (Kaplan 1970). With `crossing = true` each "
+        "order's lead time is drawn on its own instead (simulation only).")
     stock_then_pipeline = True
+    random_lead_time = True
     shortfall = "lost"
     example = {"lead_time": 2, "holding_cost": 1.0, "shortage_cost": 9.0,
                "demand": {"distribution": "poisson", "mean": 2.0}}
+    variants = {"random_lead_time": {**example, "lead_time": {"pmf": [0.2, 0.5, 0.3]}}}
 
     def check(self, spec: "InstanceSpec") -> None:
         if spec.shortage_cost <= 0 and spec.holding_cost <= 0:
             raise SpecError("instance.shortage_cost: must be > 0 when holding_cost is 0")
 
     def state_labels(self, spec: "InstanceSpec") -> list[str]:
-        return pipeline_labels("on-hand stock after this period's receipt", max(spec.lead_time, 1))
+        return layout_labels(spec, "on-hand stock after this period's receipt"
+                             if spec.lead_time_law is None else "on-hand stock")
+
+    def random_inputs(self, spec: "InstanceSpec"):
+        return rlt.arrival_inputs(spec)
+
+    def simulation_only(self, spec: "InstanceSpec") -> str:
+        return rlt.simulation_only(spec)
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
-             demand: np.ndarray) -> tuple[np.ndarray, Outcome]:
-        L = spec.lead_time
-        state, order, demand, available = stock_inputs(state, action, demand, L)
-        sales = np.minimum(available, demand)
-        end = available - sales
-        lost = demand - sales
-        nxt, received = advance(state, order, end, L)
+             demand: np.ndarray, **inputs: np.ndarray) -> tuple[np.ndarray, Outcome]:
+        r = receive(spec, state, action, demand, inputs)
+        sales = np.minimum(r.available, r.demand)
+        end = r.available - sales
+        lost = r.demand - sales
+        nxt, received = r.advance(end)
         costs = {"holding": spec.holding_cost * end, "shortage": spec.shortage_cost * lost,
-                 "ordering": ordering_cost(order, spec.unit_order_cost, spec.fixed_order_cost)}
-        return nxt, Outcome(costs, {"sales": sales, "lost": lost, "end_level": end, "received": received})
+                 "ordering": ordering_cost(r.order, spec.unit_order_cost, spec.fixed_order_cost)}
+        return nxt, Outcome(costs, {"sales": sales, "lost": lost, "end_level": end, "received": received,
+                                    **r.flows})
 
     def exact_space(self, spec: "InstanceSpec") -> ExactSpace:
+        if spec.lead_time_law is not None:  # no structured build: the generic one, opted out here
+            from .random_space import RandomLeadTimeSpace
+            return RandomLeadTimeSpace(self, spec)
         return LostSalesSpace(self, spec)
 
 
