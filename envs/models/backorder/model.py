@@ -10,9 +10,10 @@ from invbench.envs.newsvendor import order_up_to_level
 from ..base import InventoryModel, Outcome
 from ..exact_space import (Bounds, ExactSpace, SizeEstimate, BYTES_PER_NNZ, BYTES_PER_PAIR,
                            count_simplex_states, eoq_room, simplex_states)
-from ..pipeline import advance, ordering_cost, pipeline_labels, stock_inputs
+from ..pipeline import pipeline_labels
 from ..state_index import StateCodec, StateIndex
 from .lead_time_cost import lead_time_cost
+from .rules import RULES
 
 if TYPE_CHECKING:
     from invbench.envs.spec import InstanceSpec
@@ -43,17 +44,7 @@ class BackorderModel(InventoryModel):
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray) -> tuple[np.ndarray, Outcome]:
-        L = spec.lead_time
-        state, order, demand, available = stock_inputs(state, action, demand, L)
-        end = available - demand
-        # Sales: this period's demand met at once from stock (the fill); the rest waits.
-        sales = np.minimum(np.maximum(available, 0), demand)
-        backordered = np.maximum(-end, 0)
-        nxt, received = advance(state, order, end, L)
-        costs = {"holding": spec.holding_cost * np.maximum(end, 0), "shortage": spec.shortage_cost * backordered,
-                 "ordering": ordering_cost(order, spec.unit_order_cost, spec.fixed_order_cost)}
-        return nxt, Outcome(costs, {"sales": sales, "backordered": backordered, "end_level": end,
-                                    "received": received})
+        return RULES.apply(spec, state, action, demand)  # the rules: rules.py (also compiled)
 
     def exact_space(self, spec: "InstanceSpec", full_pipeline: bool = False) -> ExactSpace:
         return BackorderFullSpace(self, spec) if full_pipeline else BackorderPositionSpace(self, spec)

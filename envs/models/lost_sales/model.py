@@ -11,7 +11,8 @@ from invbench.envs.newsvendor import order_up_to_level
 from ..base import InventoryModel, Outcome
 from ..exact_space import (PEAK_BYTES_PER_NNZ, Bounds, ExactSpace, SizeEstimate, count_simplex_states,
                            eoq_room)
-from ..pipeline import advance, ordering_cost, pipeline_labels, stock_inputs
+from ..pipeline import pipeline_labels
+from .rules import RULES
 
 if TYPE_CHECKING:
     from invbench.baselines.mdp import FiniteMDP
@@ -43,15 +44,7 @@ class LostSalesModel(InventoryModel):
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray) -> tuple[np.ndarray, Outcome]:
-        L = spec.lead_time
-        state, order, demand, available = stock_inputs(state, action, demand, L)
-        sales = np.minimum(available, demand)
-        end = available - sales
-        lost = demand - sales
-        nxt, received = advance(state, order, end, L)
-        costs = {"holding": spec.holding_cost * end, "shortage": spec.shortage_cost * lost,
-                 "ordering": ordering_cost(order, spec.unit_order_cost, spec.fixed_order_cost)}
-        return nxt, Outcome(costs, {"sales": sales, "lost": lost, "end_level": end, "received": received})
+        return RULES.apply(spec, state, action, demand)  # the rules: rules.py (also compiled)
 
     def exact_space(self, spec: "InstanceSpec") -> ExactSpace:
         return LostSalesSpace(self, spec)
