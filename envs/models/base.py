@@ -15,6 +15,7 @@ import numpy as np
 if TYPE_CHECKING:  # the spec imports the model registry; type-only import breaks the cycle
     from invbench.envs.spec import InstanceSpec
     from .exact_space import ExactSpace
+    from .rules import Rules
 
 
 @dataclass(frozen=True)
@@ -119,6 +120,9 @@ class InventoryModel:
     departing: tuple[str, ...] = ("sales",)
     #: a tiny instance (spec dict without "model") for the conformance test and examples
     example: dict[str, Any] = {}
+    #: the period rules as one pure function (`rules.py`), which `step` runs on numpy and the
+    #: env and simulator run compiled; None: no compiled path (the numpy step is used)
+    rules: "Rules | None" = None
 
     # ------------------------------------------------------------------ model: layout
     def check(self, spec: "InstanceSpec") -> None:

@@ -31,6 +31,7 @@ class BackorderModel(InventoryModel):
         "`shortage_cost`; end-of-period on-hand stock costs `holding_cost` per unit.")
     stock_then_pipeline = True
     shortfall = "backordered"
+    rules = RULES
     signed_level = True
     departing = ()  # the position falls by the whole demand, met now or later
     example = {"lead_time": 1, "holding_cost": 1.0, "shortage_cost": 9.0, "fixed_order_cost": 5.0,

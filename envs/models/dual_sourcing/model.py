@@ -45,6 +45,7 @@ class DualSourcingModel(InventoryModel):
     unused_common = ("fixed_order_cost", "case_pack")
     cost_parts = ("holding", "shortage", "regular_ordering", "expedited_ordering")
     shortfall = "backordered"
+    rules = RULES
     signed_level = True
     departing = ()  # the position falls by the whole demand, met now or later
     example = {"lead_time": 2, "expedited_lead_time": 0, "holding_cost": 1.0, "shortage_cost": 19.0,

@@ -32,6 +32,7 @@ class LostSalesModel(InventoryModel):
         "unit; an order costs `unit_order_cost` per unit plus `fixed_order_cost` when positive.")
     stock_then_pipeline = True
     shortfall = "lost"
+    rules = RULES
     example = {"lead_time": 2, "holding_cost": 1.0, "shortage_cost": 9.0,
                "demand": {"distribution": "poisson", "mean": 2.0}}
 

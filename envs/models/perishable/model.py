@@ -43,6 +43,7 @@ class PerishableModel(InventoryModel):
     }
     cost_parts = ("holding", "shortage", "outdating", "ordering")
     shortfall = "lost"
+    rules = RULES
     departing = ("sales", "outdated")
     example = {"lead_time": 1, "shelf_life": 2, "issuing": "fifo", "holding_cost": 1.0, "shortage_cost": 9.0,
                "outdating_cost": 3.0, "demand": {"distribution": "poisson", "mean": 2.0}}

@@ -70,6 +70,7 @@ class SerialModel(InventoryModel):
                      "discount")
     cost_parts = ("holding", "in_transit", "shortage")
     shortfall = "backordered"
+    rules = RULES
     signed_level = True
     departing = ()
     example = {"lead_times": [1, 1], "holding_costs": [2.0, 1.0], "shortage_cost": 9.0,
