@@ -39,20 +39,19 @@ def inverse_cdf(cdf: Any, guide: Any, u: float) -> int:  # pragma: no cover - co
 
 
 def _build_run(period: Callable[..., None], key: int) -> Any:
+    from invbench.envs.models.nb_views import unmanaged
+
     def run(state, U, cdf, guide, ip, fp, W, level, reorder, cap, pack, ref, coef, seq, acc, t0, warm,
-            discounted, discount, weight0, nwork, nflows):  # pragma: no cover - compiled
+            discounted, discount, weight0, work, bs, ba, bn, bc, bf):  # pragma: no cover - compiled
         if key == 0:  # never true: `key` only keys numba's disk cache (envs/models/compiled.py)
             return
         R, n = state.shape
         T = U.shape[0]
         nc = acc.shape[1]
         k = len(level)
-        s = np.empty(n, dtype=np.int64)
-        nx = np.empty(n, dtype=np.int64)
-        a = np.zeros(k, dtype=np.int64)
-        costs = np.empty(nc)
-        flows = np.empty(nflows, dtype=np.int64)
-        work = np.empty(max(nwork, 1), dtype=np.int64)
+        # views without reference counts for the period call (envs/models/nb_views.py)
+        s, a, nx, costs, flows = unmanaged(bs), unmanaged(ba), unmanaged(bn), unmanaged(bc), unmanaged(bf)
+        ipu, fpu, w_ = unmanaged(ip), unmanaged(fp), unmanaged(work)
         w = weight0
         for t in range(T):
             for r in range(R):
@@ -73,7 +72,7 @@ def _build_run(period: Callable[..., None], key: int) -> Any:
                     o = min(max(raw, 0), cap[j])
                     a[j] = o if pack[j] == 1 else (o // pack[j]) * pack[j]  # integer division is slow
                 d = inverse_cdf(cdf, guide, U[t, r])
-                period(s, a, d, ip, fp, nx, costs, flows, work)
+                period(s, a, d, ipu, fpu, nx, costs, flows, w_)
                 for i in range(n):
                     state[r, i] = nx[i]
                 if discounted:
@@ -130,5 +129,8 @@ def compiled_costs(spec: Any, policy: Any, state: np.ndarray, rng: np.random.Gen
 def _call(run: Any, state: np.ndarray, U: np.ndarray, cdf: np.ndarray, guide: np.ndarray, p: Any,
           lin: LinearOrders, acc: np.ndarray, t0: int, warmup: int, discounted: bool, discount: float,
           weight: float, nflows: int) -> None:
+    n, k = state.shape[1], len(lin.level)
+    buffers = (np.empty(max(p.work, 1), dtype=np.int64), np.empty(n, dtype=np.int64), np.zeros(k, dtype=np.int64),
+               np.empty(n, dtype=np.int64), np.empty(acc.shape[1]), np.empty(nflows, dtype=np.int64))
     run(state, U, cdf, guide, p.ints, p.floats, lin.weights, lin.level, lin.reorder, lin.cap, lin.pack, lin.ref,
-        lin.coef, lin.sequence, acc, t0, warmup, discounted, float(discount), weight, p.work, nflows)
+        lin.coef, lin.sequence, acc, t0, warmup, discounted, float(discount), weight, *buffers)
