@@ -19,8 +19,8 @@ from invbench.envs.models.compiled import covered, driver, jit, register
 
 from .policy_kernels import LinearOrders, linear_orders
 
-#: uniforms drawn per block (8 bytes each): 2 MiB, small next to the simulation's own arrays
-BLOCK_VALUES = 1 << 18
+#: uniforms drawn per block (8 bytes each, 512 KiB): a replication walks down one column of it
+BLOCK_VALUES = 1 << 16
 #: entries of the inverse-CDF guide table (a start point for the exact search)
 GUIDE = 256
 
@@ -52,13 +52,13 @@ def _build_run(period: Callable[..., None], key: int) -> Any:
         # views without reference counts for the period call (envs/models/nb_views.py)
         s, a, nx, costs, flows = unmanaged(bs), unmanaged(ba), unmanaged(bn), unmanaged(bc), unmanaged(bf)
         ipu, fpu, w_ = unmanaged(ip), unmanaged(fp), unmanaged(work)
-        w = weight0
-        for t in range(T):
-            for r in range(R):
-                for i in range(n):
-                    s[i] = state[r, i]
-                # the order rule of policy_kernels.LinearOrders (written here, in the loop: as a
-                # function of its own it was measured several times slower)
+        for r in range(R):  # one replication through the whole block: its state stays in the cache
+            for i in range(n):
+                s[i] = state[r, i]
+            w = weight0
+            for t in range(T):
+                # the order rule of policy_kernels.LinearOrders (written here, in the loop:
+                # as a function of its own it was measured several times slower)
                 for jj in range(k):
                     j = seq[jj]
                     f = 0
@@ -74,14 +74,16 @@ def _build_run(period: Callable[..., None], key: int) -> Any:
                 d = inverse_cdf(cdf, guide, U[t, r])
                 period(s, a, d, ipu, fpu, nx, costs, flows, w_)
                 for i in range(n):
-                    state[r, i] = nx[i]
+                    s[i] = nx[i]
                 if discounted:
                     for c in range(nc):
                         acc[r, c] += w * costs[c]
+                    w = w * discount
                 elif t0 + t >= warm:
                     for c in range(nc):
                         acc[r, c] += costs[c]
-            w = w * discount
+            for i in range(n):
+                state[r, i] = s[i]
     return jit(run)
 
 
