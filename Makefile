@@ -49,6 +49,7 @@ test: chromium $(TEST_STAMP)
 perf: $(STAMP)
 	$(PY) experiments/perf/dp_grid.py
 	$(PY) experiments/perf/sim_throughput.py
+	$(PY) experiments/perf/env_step.py
 	$(PY) experiments/perf/scaling.py
 
 clean:

@@ -14,6 +14,7 @@ from .actions import ActionCodec
 from .checks import check_count
 from .errors import SpecError
 from .random_inputs import PeriodInputs
+from .row_step import RowStep
 from .spec import InstanceSpec, load_spec, spec_from_dict
 
 DEFAULT_EPISODE_LENGTH = 500
@@ -98,6 +99,7 @@ class InventoryEnv(gym.Env):
         # other random inputs (a random lead time's cut-off): own streams, so demand is the same
         self._inputs = PeriodInputs(self.spec_)
         self._input_rngs = self._inputs.streams(None)
+        self._fast = RowStep.for_spec(self.spec_)
 
     @property
     def order_sizes_units(self) -> np.ndarray:
@@ -113,14 +115,19 @@ class InventoryEnv(gym.Env):
         return self._obs(), {}
 
     def step(self, action: Any) -> tuple[np.ndarray, float, bool, bool, dict]:
+        # the compiled one-row step when the model's rules cover the instance (same numbers)
+        done = self._fast.step(self._state, action, self.np_random) if self._fast is not None else None
+        self._state, info = done if done is not None else self._step_numpy(action)
+        self._t += 1
+        truncated = self._t >= self.episode_length
+        return self._obs(), -info["cost"], False, truncated, info
+
+    def _step_numpy(self, action: Any) -> tuple[np.ndarray, dict]:
         order = self._codec.orders(action, 1)
         demand = self.spec_.demand.sample(self.np_random, 1)
         extra = self._inputs.draw(self._input_rngs, 1)
-        self._state, parts = self._model.step(self.spec_, self._state, order, demand, **extra)
-        self._t += 1
-        info = info_dict(self.spec_, order, demand, parts, 0)
-        truncated = self._t >= self.episode_length
-        return self._obs(), -info["cost"], False, truncated, info
+        state, parts = self._model.step(self.spec_, self._state, order, demand, **extra)
+        return state, info_dict(self.spec_, order, demand, parts, 0)
 
     def _obs(self) -> np.ndarray:
         return self._state[0].astype(np.float32)

@@ -16,6 +16,7 @@ if TYPE_CHECKING:  # the spec imports the model registry; type-only import break
     from invbench.envs.random_inputs import InputLaw
     from invbench.envs.spec import InstanceSpec
     from .exact_space import ExactSpace
+    from .rules import Rules
 
 
 @dataclass(frozen=True)
@@ -124,6 +125,9 @@ class InventoryModel:
     variants: dict[str, dict[str, Any]] = {}
     #: `lead_time` may be a pmf table (envs/lead_time.py); the step then takes its arrivals input
     random_lead_time: bool = False
+    #: the period rules as one pure function (`rules.py`), which `step` runs on numpy and the
+    #: env and simulator run compiled; None: no compiled path (the numpy step is used)
+    rules: "Rules | None" = None
 
     # ------------------------------------------------------------------ model: layout
     def check(self, spec: "InstanceSpec") -> None:

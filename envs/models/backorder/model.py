@@ -15,6 +15,7 @@ from ..pipeline import layout_labels, ordering_cost, receive
 from .. import random_lead_time as rlt
 from ..state_index import StateCodec, StateIndex
 from .lead_time_cost import lead_time_cost
+from .rules import RULES
 
 if TYPE_CHECKING:
     from invbench.envs.spec import InstanceSpec
@@ -37,6 +38,7 @@ class BackorderModel(InventoryModel):
     stock_then_pipeline = True
     random_lead_time = True
     shortfall = "backordered"
+    rules = RULES
     signed_level = True
     departing = ()  # the position falls by the whole demand, met now or later
     example = {"lead_time": 1, "holding_cost": 1.0, "shortage_cost": 9.0, "fixed_order_cost": 5.0,
@@ -58,6 +60,9 @@ class BackorderModel(InventoryModel):
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray, **inputs: np.ndarray) -> tuple[np.ndarray, Outcome]:
+        if spec.lead_time_law is None and not inputs:
+            return RULES.apply(spec, state, action, demand)  # the rules: rules.py (also compiled)
+        # a random lead time: the receipt by the cut-off (random_lead_time.py), then the same accounting
         r = receive(spec, state, action, demand, inputs)
         end = r.available - r.demand
         # Sales: this period's demand met at once from stock (the fill); the rest waits.

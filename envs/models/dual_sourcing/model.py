@@ -15,6 +15,7 @@ from invbench.envs.errors import SpecError
 
 from ..base import Field, InventoryModel, OrderSlot, Outcome
 from ..exact_space import ExactSpace
+from .rules import RULES
 
 if TYPE_CHECKING:
     from invbench.envs.spec import InstanceSpec
@@ -44,6 +45,7 @@ class DualSourcingModel(InventoryModel):
     unused_common = ("fixed_order_cost", "case_pack")
     cost_parts = ("holding", "shortage", "regular_ordering", "expedited_ordering")
     shortfall = "backordered"
+    rules = RULES
     signed_level = True
     departing = ()  # the position falls by the whole demand, met now or later
     example = {"lead_time": 2, "expedited_lead_time": 0, "holding_cost": 1.0, "shortage_cost": 19.0,
@@ -78,26 +80,7 @@ class DualSourcingModel(InventoryModel):
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray) -> tuple[np.ndarray, Outcome]:
-        lr, le = spec.lead_time, spec.expedited_lead_time
-        state = np.asarray(state, dtype=np.int64)
-        act = np.asarray(action, dtype=np.int64).reshape(len(state), 2)
-        qr, qe = act[:, 0], act[:, 1]
-        demand = np.asarray(demand, dtype=np.int64)
-        reg = state[:, 1:lr]  # regular orders arriving in 1 .. lr-1 periods
-        exp = state[:, lr:]  # expedited orders arriving in 1 .. le-1 periods
-        end = state[:, 0] + (qe if le == 0 else 0) - demand
-        sales = np.minimum(np.maximum(state[:, 0] + (qe if le == 0 else 0), 0), demand)
-        backordered = np.maximum(-end, 0)
-        # what arrives at the start of next period, and the pipelines shifted by one period
-        reg_next = np.column_stack([reg, qr])  # lr >= 1 always (lr > le >= 0)
-        exp_next = np.column_stack([exp, qe]) if le >= 1 else np.zeros((len(state), 0), dtype=np.int64)
-        received = reg_next[:, 0] + (exp_next[:, 0] if le >= 1 else 0)
-        nxt = np.column_stack([end + received, reg_next[:, 1:], exp_next[:, 1:]])
-        costs = {"holding": spec.holding_cost * np.maximum(end, 0), "shortage": spec.shortage_cost * backordered,
-                 "regular_ordering": spec.unit_order_cost * qr,
-                 "expedited_ordering": spec.expedited_unit_cost * qe}
-        return nxt, Outcome(costs, {"sales": sales, "backordered": backordered, "end_level": end,
-                                    "received": received})
+        return RULES.apply(spec, state, action, demand)  # the rules: rules.py (also compiled)
 
     def exact_space(self, spec: "InstanceSpec") -> ExactSpace:
         from .space import DualSourcingSpace

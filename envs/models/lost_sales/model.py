@@ -13,6 +13,7 @@ from ..exact_space import (PEAK_BYTES_PER_NNZ, Bounds, ExactSpace, SizeEstimate,
                            eoq_room)
 from ..pipeline import layout_labels, ordering_cost, receive
 from .. import random_lead_time as rlt
+from .rules import RULES
 
 if TYPE_CHECKING:
     from invbench.baselines.mdp import FiniteMDP
@@ -39,6 +40,7 @@ class LostSalesModel(InventoryModel):
     stock_then_pipeline = True
     random_lead_time = True
     shortfall = "lost"
+    rules = RULES
     example = {"lead_time": 2, "holding_cost": 1.0, "shortage_cost": 9.0,
                "demand": {"distribution": "poisson", "mean": 2.0}}
     variants = {"random_lead_time": {**example, "lead_time": {"pmf": [0.2, 0.5, 0.3]}}}
@@ -59,6 +61,9 @@ class LostSalesModel(InventoryModel):
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray, **inputs: np.ndarray) -> tuple[np.ndarray, Outcome]:
+        if spec.lead_time_law is None and not inputs:
+            return RULES.apply(spec, state, action, demand)  # the rules: rules.py (also compiled)
+        # a random lead time: the receipt by the cut-off (random_lead_time.py), then the same accounting
         r = receive(spec, state, action, demand, inputs)
         sales = np.minimum(r.available, r.demand)
         end = r.available - sales

@@ -16,7 +16,7 @@ from invbench.envs.newsvendor import order_up_to_level
 
 from ..base import Field, InventoryModel, Outcome
 from ..exact_space import Bounds, ExactSpace, eoq_room
-from ..pipeline import ordering_cost
+from .rules import RULES
 
 if TYPE_CHECKING:
     from invbench.envs.spec import InstanceSpec
@@ -43,6 +43,7 @@ class PerishableModel(InventoryModel):
     }
     cost_parts = ("holding", "shortage", "outdating", "ordering")
     shortfall = "lost"
+    rules = RULES
     departing = ("sales", "outdated")
     example = {"lead_time": 1, "shelf_life": 2, "issuing": "fifo", "holding_cost": 1.0, "shortage_cost": 9.0,
                "outdating_cost": 3.0, "demand": {"distribution": "poisson", "mean": 2.0}}
@@ -70,34 +71,7 @@ class PerishableModel(InventoryModel):
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray) -> tuple[np.ndarray, Outcome]:
-        m, L = spec.shelf_life, spec.lead_time
-        state = np.asarray(state, dtype=np.int64)
-        order = np.asarray(action, dtype=np.int64).reshape(len(state), -1)[:, 0]
-        demand = np.asarray(demand, dtype=np.int64)
-        if L == 0:
-            stock = np.column_stack([state[:, :m - 1], order])  # the order arrives fresh, at once
-        else:
-            stock = state[:, :m].copy()
-        left = demand.copy()
-        issue = range(m) if spec.issuing == "fifo" else range(m - 1, -1, -1)
-        for j in issue:
-            take = np.minimum(stock[:, j], left)
-            stock[:, j] -= take
-            left -= take
-        outdated = stock[:, 0]
-        carried = stock[:, 1:]  # now with one period less of life: life 1 .. m-1
-        if L == 0:
-            nxt = carried
-            received = np.zeros_like(order)
-        else:
-            received = state[:, m] if L >= 2 else order
-            tail = [state[:, m + 1:], order[:, None]] if L >= 2 else []
-            nxt = np.column_stack([carried, received[:, None], *tail])
-        costs = {"holding": spec.holding_cost * carried.sum(axis=1), "shortage": spec.shortage_cost * left,
-                 "outdating": spec.outdating_cost * outdated,
-                 "ordering": ordering_cost(order, spec.unit_order_cost, spec.fixed_order_cost)}
-        flows = {"sales": demand - left, "lost": left, "outdated": outdated, "received": received}
-        return nxt, Outcome(costs, flows)
+        return RULES.apply(spec, state, action, demand)  # the rules: rules.py (also compiled)
 
     def exact_space(self, spec: "InstanceSpec") -> ExactSpace:
         return PerishableSpace(self, spec)

@@ -14,6 +14,7 @@ import numpy as np
 from invbench.envs.errors import SpecError
 
 from ..base import Field, InventoryModel, OrderSlot, Outcome
+from .rules import RULES
 
 if TYPE_CHECKING:
     from invbench.envs.spec import InstanceSpec
@@ -69,6 +70,7 @@ class SerialModel(InventoryModel):
                      "discount")
     cost_parts = ("holding", "in_transit", "shortage")
     shortfall = "backordered"
+    rules = RULES
     signed_level = True
     departing = ()
     example = {"lead_times": [1, 1], "holding_costs": [2.0, 1.0], "shortage_cost": 9.0,
@@ -133,44 +135,7 @@ class SerialModel(InventoryModel):
     # ------------------------------------------------------------------ dynamics
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray) -> tuple[np.ndarray, Outcome]:
-        state = np.asarray(state, dtype=np.int64)
-        B = len(state)
-        L, h = spec.lead_times, spec.holding_costs
-        N = len(L)
-        orders = np.asarray(action, dtype=np.int64).reshape(B, N)
-        demand = np.asarray(demand, dtype=np.int64)
-        cols = blocks(spec)
-        stock = [state[:, c].copy() for c, _ in cols]
-        ship = [np.zeros(B, dtype=np.int64) for _ in range(N)]
-        ship[N - 1] = orders[:, N - 1]  # the outside supplier ships every order in full
-        for j in range(N - 1, -1, -1):  # down the chain, so a zero lead time passes stock on at once
-            if L[j] == 0:
-                stock[j] += ship[j]
-            if j > 0:
-                ship[j - 1] = np.minimum(orders[:, j - 1], stock[j])
-                stock[j] -= ship[j - 1]
-        sales = np.minimum(np.maximum(stock[0], 0), demand)
-        stock[0] = stock[0] - demand
-        backordered = np.maximum(-stock[0], 0)
-        nxt = np.empty_like(state)
-        holding = np.zeros(B)
-        transit = np.zeros(B)
-        for j, (c, w) in enumerate(cols):
-            holding += h[j] * np.maximum(stock[j], 0)
-            pipe = state[:, c + 1:c + w]
-            if L[j] >= 1 and j + 1 < N:  # stock from the outside supplier costs nothing in transit
-                transit += h[j + 1] * (pipe.sum(axis=1) + ship[j])
-            if L[j] == 0:
-                nxt[:, c] = stock[j]
-            elif L[j] == 1:
-                nxt[:, c] = stock[j] + ship[j]
-            else:
-                nxt[:, c] = stock[j] + pipe[:, 0]
-                nxt[:, c + 1:c + w - 1] = pipe[:, 1:]
-                nxt[:, c + w - 1] = ship[j]
-        costs = {"holding": holding, "in_transit": transit, "shortage": spec.shortage_cost * backordered}
-        flows = {"sales": sales, "backordered": backordered, "end_level": stock[0], "supplied": ship[N - 1]}
-        return nxt, Outcome(costs, flows)
+        return RULES.apply(spec, state, action, demand)  # the rules: rules.py (also compiled)
 
     def exact_space(self, spec: "InstanceSpec"):
         from .space import SerialSpace
