@@ -14,38 +14,35 @@ from typing import Any
 
 import numpy as np
 
-from .models.compiled import CompiledStep, covered
+from .models.compiled import covered, one_row_driver
+from .models.rules import Params, Rules
 from .spec import InstanceSpec
 
 
 class RowStep:
     """One period of one env copy: `step(state[1, n], action, rng)` -> (next state, info) or None."""
 
-    def __init__(self, spec: InstanceSpec, compiled: CompiledStep) -> None:
-        self.compiled = compiled
-        self.args = (compiled.params.ints, compiled.params.floats)
+    def __init__(self, spec: InstanceSpec, rules: Rules, p: Params) -> None:
+        self.one = one_row_driver(rules)
         self.cdf = spec.demand.pmf().cdf().tolist()
         self.top = len(self.cdf) - 1
         self.sizes = [s.sizes_units.tolist() for s in spec.order_slots]
         k, n = len(self.sizes), spec.state_dim
-        self.order = np.zeros((1, k), dtype=np.int64)
-        self.demand = np.zeros(1, dtype=np.int64)
-        self.costs = np.zeros((len(compiled.rules.costs), 1))
-        self.flows = np.zeros((len(compiled.rules.flows), 1), dtype=np.int64)
-        self.keys = list(compiled.rules.flows) + [f"{c}_cost" for c in compiled.rules.costs]
+        self.k = k
+        self.ints = np.zeros(k + 1 + len(rules.flows), dtype=np.int64)  # orders, demand, flows
+        self.floats = np.zeros(len(rules.costs))  # costs
+        self.keys = list(rules.flows) + [f"{c}_cost" for c in rules.costs]
         # two states' arrays take turns as this step's state and next state; the driver's
         # arguments for either turn are built once (building them per call was a third of a step)
         self.pair = [np.zeros((1, n), dtype=np.int64), np.zeros((1, n), dtype=np.int64)]
-        rest = (self.costs, self.flows, compiled.work, *compiled.buffers)
-        self.calls = [(a, self.order, self.demand, *self.args, b, *rest) for a, b in (self.pair, self.pair[::-1])]
+        rest = (self.ints, self.floats, p.ints, p.floats, np.zeros(max(p.work, 1), dtype=np.int64), k)
+        self.calls = [(a, b, *rest) for a, b in (self.pair, self.pair[::-1])]
         self.turn = 0
 
     @classmethod
     def for_spec(cls, spec: InstanceSpec) -> "RowStep | None":
         found = covered(spec)
-        if found is None:
-            return None
-        return cls(spec, CompiledStep(*found, spec.state_dim, len(spec.order_slots)))
+        return None if found is None else cls(spec, *found)
 
     def units(self, action: Any) -> list[int] | None:
         """Units per slot for a plain in-range index (or an integer vector of them); None otherwise."""
@@ -66,17 +63,17 @@ class RowStep:
             return None
         if state is not self.pair[0]:  # after a reset: start from the env's state in our buffer
             np.copyto(self.pair[0], state)
-        order = self.order
+        ints = self.ints
         for j, u in enumerate(units):
-            order[0, j] = u
+            ints[j] = u
         d = min(bisect_right(self.cdf, rng.random()), self.top)
-        self.demand[0] = d
-        self.compiled.rows(*self.calls[self.turn])
+        ints[self.k] = d
+        self.one(*self.calls[self.turn])
         self.turn = 1 - self.turn  # the next state's array holds the state of the next call
         self.pair.reverse()
-        costs = self.costs[:, 0].tolist()
+        costs = self.floats.tolist()
         info: dict[str, Any] = {"order_units": units if len(units) > 1 else units[0], "demand": d}
-        info.update(zip(self.keys, self.flows[:, 0].tolist() + costs))
+        info.update(zip(self.keys, ints[self.k + 1:].tolist() + costs))
         info["cost"] = sum(costs)
         return self.pair[0], info
 

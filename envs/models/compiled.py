@@ -123,6 +123,28 @@ def _build_rows(period: Callable[..., None], key: int) -> Any:
     return jit(rows)
 
 
+def _build_one(period: Callable[..., None], key: int) -> Any:
+    from .nb_views import unmanaged
+
+    def one(state, nxt, ints, floats, ip, fp, work, k):  # pragma: no cover - compiled
+        # ints = [orders (k), demand, flows], floats = costs: few arguments, since numba's call
+        # from Python costs about a tenth of a microsecond per array (the env steps one row)
+        if key == 0:  # never true: `key` is here only to key numba's disk cache (module doc)
+            return
+        # views bound to names first: passed as call expressions, numba's inlining lost writes
+        s, a, nx, c, f = unmanaged(state[0]), unmanaged(ints[:k]), unmanaged(nxt[0]), unmanaged(floats), \
+            unmanaged(ints[k + 1:])
+        ipu, fpu, w = unmanaged(ip), unmanaged(fp), unmanaged(work)
+        period(s, a, ints[k], ipu, fpu, nx, c, f, w)
+    return jit(one)
+
+
+def one_row_driver(rules: Rules) -> Any:
+    """`one(state[1, n], next[1, n], ints, floats, ip, fp, work, k)`: one period of one row, with
+    ints = [orders (k), demand, flows out] and floats = costs out (the env's step)."""
+    return driver("one", rules, _build_one)
+
+
 class CompiledStep:
     """The model's batch step, compiled: `step(state[B, n], orders[B, k], demand[B])` gives the
     same (next state, Outcome) as `model.step`, bit for bit (tests/test_compiled_paths.py)."""
