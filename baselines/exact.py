@@ -20,6 +20,8 @@ from invbench.envs.checks import check_choice, check_number
 from .iteration import (IterationOutcome, discounted_policy_iteration, discounted_value_iteration,
                         relative_value_iteration)
 from .mdp import FiniteMDP, build_mdp, check_budget
+from .split_mdp import build_split_mdp, split_estimate
+from .split_solve import run_split, split_for
 from .table_policy import TablePolicy
 
 DEFAULT_MAX_STATES = 3_000_000
@@ -68,6 +70,8 @@ class SolveResult:
 
 def reachable_states(mdp: FiniteMDP, choice: np.ndarray) -> np.ndarray:
     """States reachable from the start state when the pairs `choice` are used."""
+    if hasattr(mdp, "reachable"):  # a matrix-free MDP (`split_mdp.py`) finds them itself
+        return mdp.reachable(choice)
     P = mdp.P[choice]
     return np.sort(breadth_first_order(P, mdp.start, directed=True, return_predecessors=False))
 
@@ -156,10 +160,15 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     notes: list[str] = []
     total_iter = 0
     bar = None
+    # a space that declares how demand enters its step is iterated without a transition matrix
+    split = split_for(space, method, fast)
     for widen in range(MAX_WIDENINGS + 1):
-        est = space.estimate(b)
+        est = space.estimate(b) if split is None else split_estimate(space, b)
         check_budget(est, max_states, int(max_memory_mb * 2**20))
-        mdp = (space.fast_build(b) if fast else None) or build_mdp(space, b)
+        if split is not None:
+            mdp = build_split_mdp(space, split, b)
+        else:
+            mdp = (space.fast_build(b) if fast else None) or build_mdp(space, b)
         on_iter = None
         if progress:
             from tqdm import tqdm
@@ -169,7 +178,8 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
                 _bar.update(1)
                 if it % 10 == 0:
                     _bar.set_postfix(gap=f"{(hi - lo) / max(abs(lo), 1e-12):.1e}")
-        out = _run(mdp, spec, method, rel_tol, on_iter)
+        out = (_run(mdp, spec, method, rel_tol, on_iter) if split is None
+               else run_split(mdp, spec.discount, rel_tol, on_iter))
         if bar is not None:
             bar.close()
         total_iter += out.iterations

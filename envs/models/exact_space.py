@@ -24,6 +24,7 @@ if TYPE_CHECKING:
     from invbench.envs.demand import DiscretePmf
     from invbench.envs.spec import InstanceSpec
     from .base import InventoryModel, Outcome
+    from .demand_split import DemandSplit
 
 
 @dataclass(frozen=True)
@@ -156,6 +157,12 @@ class ExactSpace:
 
     def fast_build(self, b: Bounds) -> "FiniteMDP | None":
         """A structured build giving the same MDP as the generic one, or None."""
+        return None
+
+    def demand_split(self) -> "DemandSplit | None":
+        """Opt-in: how `step` splits into a fixed post-decision part and demand acting on the
+        first coordinate (`demand_split.py`), so the solver needs no transition matrix; None
+        where that does not hold for this instance."""
         return None
 
     def binding(self, mdp: "FiniteMDP", chosen: np.ndarray) -> tuple[bool, bool]:
