@@ -34,20 +34,23 @@ def _search(sorted_keys, key):
 
 
 @njit(cache=True)
-def build_combos(blk, blk_rest, blk_key, actions, totals, avail_w, recv_w, rest_w, radix, upper):
-    """Combos of every block (orders ascending), the avail range they need, and how many led
-    to a next block missing from the space. u = [rest entries, order] for the weights."""
+def combo_counts(blk, totals, upper):
+    """Orders legal at each block's lowest stock (at least the first)."""
+    counts = np.empty(blk.shape[0], dtype=np.int64)
+    for b in range(blk.shape[0]):
+        c = 1
+        while c < len(totals) and blk[b, 1] + blk[b, 3] + totals[c] <= upper:
+            c += 1
+        counts[b] = c
+    return counts
+
+
+@njit(cache=True)
+def fill_combos(cmb, start, blk, blk_rest, blk_key, actions, totals, avail_w, recv_w, rest_w, radix, upper):
+    """Rows of cmb (orders ascending per block); returns the avail range the combos need and
+    how many led to a next block missing from the space. u = [rest entries, order]."""
     nb, m = blk_rest.shape
     k = actions.shape[1]
-    n_act = len(totals)
-    counts = np.zeros(nb + 1, dtype=np.int64)
-    for b in range(nb):
-        c = 1
-        while c < n_act and blk[b, 1] + blk[b, 3] + totals[c] <= upper:
-            c += 1
-        counts[b + 1] = c
-    start = np.cumsum(counts)
-    cmb = np.empty((start[-1], 4), dtype=np.int64)
     vmin, vmax, missing = np.iinfo(np.int64).max, np.iinfo(np.int64).min, 0
     u = np.empty(m + k, dtype=np.int64)
     for b in range(nb):
@@ -78,21 +81,19 @@ def build_combos(blk, blk_rest, blk_key, actions, totals, avail_w, recv_w, rest_
             top = blk[b, 2] if j == 0 else min(blk[b, 2], upper - blk[b, 3] - totals[j])
             vmin = min(vmin, blk[b, 1] + voff)
             vmax = max(vmax, top + voff)
-    return start, cmb, vmin, vmax, missing
+    return vmin, vmax, missing
 
 
 @njit(cache=True)
-def pair_counts(blk, totals, upper):
-    """Legal orders of each state (at least one), in state order."""
-    out = np.empty(blk[-1, 0] + blk[-1, 2] - blk[-1, 1] + 1, dtype=np.int64)
+def pair_counts(out, blk, totals, upper):
+    """out[1 + s] = legal orders of state s (at least one), in state order."""
     for b in range(blk.shape[0]):
         for x0 in range(blk[b, 1], blk[b, 2] + 1):
             room = upper - blk[b, 3] - x0
             c = 1
             while c < len(totals) and totals[c] <= room:
                 c += 1
-            out[blk[b, 0] + x0 - blk[b, 1]] = c
-    return out
+            out[1 + blk[b, 0] + x0 - blk[b, 1]] = c
 
 
 @njit(cache=True)
@@ -188,11 +189,9 @@ def clip_mass(states, orders, blk, cmb_start, cmb, lower, floor, p):
 
 
 @njit(cache=True)
-def reachable(choice, start, blk, cmb_start, cmb, lower, floor, p):
-    """States reachable from `start` when state s places order choice[s], sorted."""
-    n = len(choice)
-    seen = np.zeros(n, dtype=np.bool_)
-    queue = np.empty(n, dtype=np.int64)
+def reachable(seen, queue, choice, start, blk, cmb_start, cmb, lower, floor, p):
+    """States reachable from `start` when state s places order choice[s] (seen: all False,
+    queue: room for every state), sorted."""
     queue[0] = start
     seen[start] = True
     head, tail = 0, 1

@@ -104,7 +104,8 @@ class SplitMDP:
     def reachable(self, choice: np.ndarray) -> np.ndarray:
         """States reachable from the start when each state uses its pair in `choice`."""
         j = choice - self.pair_start[:-1]
-        return K.reachable(j, self.start, self.blk, self.cmb_start, self.cmb, self.bounds.lower, self.floor,
+        seen, queue = np.zeros(self.n_states, dtype=bool), np.empty(self.n_states, dtype=np.int64)
+        return K.reachable(seen, queue, j, self.start, self.blk, self.cmb_start, self.cmb, self.bounds.lower, self.floor,
                            self.p)
 
     def _units(self) -> None:
@@ -183,8 +184,10 @@ def build_split_mdp(space: ExactSpace, split: DemandSplit, b: Bounds) -> SplitMD
     if totals[0] != 0 or np.any(np.diff(totals) < 0):
         raise RuntimeError("split solver: the space's orders are not listed by total, nothing first")
     n = split.n
-    cmb_start, cmb, vmin, vmax, missing = K.build_combos(
-        blk, rest, rest_key, actions, totals, np.ascontiguousarray(split.avail_from[1:]),
+    cmb_start = np.r_[0, np.cumsum(K.combo_counts(blk, totals, b.upper))].astype(np.int64)
+    cmb = np.empty((cmb_start[-1], 4), dtype=np.int32)  # order, next block, received, avail offset
+    vmin, vmax, missing = K.fill_combos(
+        cmb, cmb_start, blk, rest, rest_key, actions, totals, np.ascontiguousarray(split.avail_from[1:]),
         np.ascontiguousarray(split.received_from[1:]), np.ascontiguousarray(split.rest_from[:, 1:]),
         index.codec.pipe_radix, b.upper)
     if missing:
@@ -201,8 +204,9 @@ def build_split_mdp(space: ExactSpace, split: DemandSplit, b: Bounds) -> SplitMD
     rep[:, 0] = avail0
     _, without = _expected_costs(space, rep, np.repeat(actions[:1], len(actions), axis=0), pmf)
     co_parts = with_order - without
-    counts = K.pair_counts(blk, totals, b.upper)
-    pair_start = np.r_[0, np.cumsum(counts)].astype(np.int64)
+    pair_start = np.zeros(len(index) + 1, dtype=np.int64)
+    K.pair_counts(pair_start, blk, totals, b.upper)
+    np.cumsum(pair_start, out=pair_start)
     start = int(index.lookup(space.start_state())[0])
     # entries that feed neither the avail nor the next state's other entries: only what arrives
     free = np.all(split.rest_from[:, 1:n] == 0, axis=0) & (split.avail_from[1:n] == 0)
@@ -272,12 +276,13 @@ def check_against_step(space: ExactSpace, split: DemandSplit, mdp: SplitMDP, n: 
 
 
 # ---------------------------------------------------------------------------- the budget
-#: Bytes per state of the split solver, beyond the state array itself: index keys and their
-#: sort, values (h, Th, previous h, differences), pair offsets, choice, orders and tables
-#: (measured with tracemalloc, experiments/perf/scaling.py), plus the state array and its copy
-#: while the index is sorted.
-SPLIT_BYTES_PER_STATE = 120
-SPLIT_BYTES_PER_ENTRY = 16
+#: Peak bytes per state of the split solve, as a base plus a share per state entry: the state
+#: index (entries and keys, and their copies while it is built), the tables (a combo per state
+#: or so), two value arrays, the pair offsets, the choice and the optimal table (measured with
+#: tracemalloc and peak RSS for lost sales, L = 5 and 6: 104 and 120 bytes per state while
+#: building, about 140 at the end; experiments/perf/exact_targets.py).
+SPLIT_BYTES_PER_STATE = 100
+SPLIT_BYTES_PER_ENTRY = 8
 
 
 def split_estimate(space: ExactSpace, b: Bounds) -> SizeEstimate:

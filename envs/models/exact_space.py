@@ -61,15 +61,19 @@ PEAK_BYTES_PER_NNZ = 56
 
 
 def simplex_states(n: int, upper: int) -> np.ndarray:
-    """All x in Z_+^n with sum(x) <= upper, as an int64 array [S, n]."""
-    states = np.zeros((1, 0), dtype=np.int64)
+    """All x in Z_+^n with sum(x) <= upper, as an int64 array [S, n].
+
+    Rows come in the order of a state index (`state_index.py`: the last entry most significant,
+    the first least), so indexing them sorts already sorted keys."""
+    states = np.zeros((1, n), dtype=np.int64)
     sums = np.zeros(1, dtype=np.int64)
-    for _ in range(n):
+    for col in range(n - 1, -1, -1):
         room = upper - sums
         reps = room + 1
         idx = np.repeat(np.arange(len(states)), reps)
         vals = np.arange(reps.sum()) - np.repeat(np.cumsum(reps) - reps, reps)
-        states = np.column_stack([states[idx], vals])
+        states = states[idx]
+        states[:, col] = vals
         sums = sums[idx] + vals
     return states
 
