@@ -126,8 +126,11 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     (HiGHS, tiny instances), "value_iteration" or "policy_iteration" (discounted only).
     full_pipeline: for backorders, solve on the full pipeline state instead of the inventory
     position (for checking that reduction; far larger).
-    fast: use the model's structured build where it has one (same numbers, much quicker);
-    False uses the straightforward build, stepping every (state, order, demand).
+    fast: where the model's exact space declares a demand split (`demand_split()`: lost sales,
+    backorders, dual sourcing with fixed lead times), RVI / value iteration run without a
+    transition matrix (`split_mdp.py`, `split_solve.py`); otherwise the model's structured build
+    where it has one. Same numbers, much quicker and smaller. False uses the straightforward
+    build, stepping every (state, order, demand).
     A model whose exact space offers `certified_solve` (an exact method of its own, e.g. the
     serial chain's decomposition) is solved by it when method is "auto", no bounds are given
     and fast is True; any other choice builds and solves the MDP.

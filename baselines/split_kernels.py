@@ -120,10 +120,9 @@ def count_out_of_space(blk, cmb_start, cmb, totals, upper, lower, floor, p):
 
 
 @njit(cache=True)
-def build_units(blk, blk_rest, cmb_start, cmb, totals, upper, lower, floor, free, n_demand):
+def unit_starts(blk_rest, free, cmb_start):
     """Units: runs of consecutive blocks equal in every entry but the `free` ones (those feeding
-    only what is received). Returns (unit starts, scratch size of the sweep, number of (unit,
-    order) whose blocks do not share one next block and avail offset)."""
+    only what is received). Returns (first block of each unit and the end, orders per unit)."""
     nb, m = blk_rest.shape
     starts = np.empty(nb + 1, dtype=np.int64)
     nu = 0
@@ -136,13 +135,22 @@ def build_units(blk, blk_rest, cmb_start, cmb, totals, upper, lower, floor, free
             starts[nu] = b
             nu += 1
     starts[nu] = nb
-    s_len, bad = 1, 0
+    orders = np.zeros(nu, dtype=np.int64)
     for u in range(nu):
+        for b in range(starts[u], starts[u + 1]):
+            orders[u] = max(orders[u], cmb_start[b + 1] - cmb_start[b])
+    return starts[:nu + 1].copy(), orders
+
+
+@njit(cache=True)
+def fill_unit_orders(uo, uo_start, starts, blk, cmb_start, cmb, totals, upper, lower, floor, n_demand):
+    """uo rows per (unit, order j): next block, lowest and highest y = avail + received, lowest
+    floor kf. Returns (scratch size of the sweep, number of (unit, order) whose blocks do not
+    share one next block and avail offset)."""
+    s_len, bad = 1, 0
+    for u in range(len(starts) - 1):
         b0, b1 = starts[u], starts[u + 1]
-        jmax = 0
-        for b in range(b0, b1):
-            jmax = max(jmax, cmb_start[b + 1] - cmb_start[b])
-        for j in range(jmax):
+        for j in range(uo_start[u + 1] - uo_start[u]):
             zb, voff, ylo, yhi, kfmin = -1, 0, 0, 0, 0
             for b in range(b0, b1):
                 c = cmb_start[b] + j
@@ -157,9 +165,11 @@ def build_units(blk, blk_rest, cmb_start, cmb, totals, upper, lower, floor, free
                     bad += 1
                 ylo, yhi, kfmin = min(ylo, y0), max(yhi, y1), min(kfmin, kf)
                 s_len = max(s_len, top - blk[b, 1] + 1)
+            row = uo_start[u] + j
+            uo[row, 0], uo[row, 1], uo[row, 2], uo[row, 3] = zb, ylo, yhi, kfmin
             # the sweep's running sums: rows y - m - kfmin of n_demand - 1 entries, and one per y
             s_len = max(s_len, (yhi - kfmin + 1) * (n_demand - 1) + 1, yhi - ylo + 1)
-    return starts[:nu + 1].copy(), s_len, bad
+    return s_len, bad
 
 
 @njit(cache=True)

@@ -67,6 +67,8 @@ class SplitMDP:
     blk_rest: np.ndarray | None = None  # [blocks, n - 1] the other entries of each block
     free: np.ndarray | None = None  # [n - 1] entries that feed only what is received next period
     unit_start: np.ndarray | None = None  # [units + 1] runs of blocks sharing one expectation per order
+    uo_start: np.ndarray | None = None  # [units + 1] rows of uo per unit, one per order
+    uo: np.ndarray | None = None  # [rows, 4] next block, lowest and highest avail + received, lowest floor
     s_len: int = 0  # scratch size of the sweep
 
     def __post_init__(self) -> None:
@@ -110,14 +112,16 @@ class SplitMDP:
 
     def _units(self) -> None:
         b = self.bounds
-        self.unit_start, self.s_len, bad = K.build_units(
-            self.blk, self.blk_rest, self.cmb_start, self.cmb, self.totals, b.upper, b.lower, self.floor,
-            self.free, len(self.p))
+        self.unit_start, orders = K.unit_starts(self.blk_rest, self.free, self.cmb_start)
+        self.uo_start = np.r_[0, np.cumsum(orders)].astype(np.int64)
+        self.uo = np.empty((self.uo_start[-1], 4), dtype=np.int64)
+        self.s_len, bad = K.fill_unit_orders(self.uo, self.uo_start, self.unit_start, self.blk, self.cmb_start,
+                                             self.cmb, self.totals, b.upper, b.lower, self.floor, len(self.p))
         if bad:
             raise RuntimeError("split solver: blocks of a unit lead to different next blocks")
 
     def sweep_args(self) -> tuple:
-        return (self.s_len, self.unit_start, self.blk, self.cmb_start, self.cmb, self.totals, self.bounds.upper,
+        return (self.s_len, self.unit_start, self.uo_start, self.uo, self.blk, self.cmb_start, self.cmb, self.totals, self.bounds.upper,
                 self.bounds.lower, self.vmin, self.cd, self.co, self.floor, self.p, self.tail)
 
 
