@@ -14,6 +14,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
+from numba import njit
 
 from invbench.envs.errors import SpecError
 
@@ -64,18 +65,30 @@ def simplex_states(n: int, upper: int) -> np.ndarray:
     """All x in Z_+^n with sum(x) <= upper, as an int64 array [S, n].
 
     Rows come in the order of a state index (`state_index.py`: the last entry most significant,
-    the first least), so indexing them sorts already sorted keys."""
-    states = np.zeros((1, n), dtype=np.int64)
-    sums = np.zeros(1, dtype=np.int64)
-    for col in range(n - 1, -1, -1):
-        room = upper - sums
-        reps = room + 1
-        idx = np.repeat(np.arange(len(states)), reps)
-        vals = np.arange(reps.sum()) - np.repeat(np.cumsum(reps) - reps, reps)
-        states = states[idx]
-        states[:, col] = vals
-        sums = sums[idx] + vals
-    return states
+    the first least), so indexing them needs no sort."""
+    out = np.empty((count_simplex_states(n, upper), n), dtype=np.int64)
+    if len(out) and n:
+        _fill_simplex(out, upper)
+    return out
+
+
+@njit(cache=True)
+def _fill_simplex(out, upper):
+    n = out.shape[1]
+    x = np.zeros(n, dtype=np.int64)
+    total = 0
+    for row in range(out.shape[0]):
+        out[row] = x
+        # next row: raise the first entry that can grow, resetting those before it
+        i = 0
+        while i < n and total == upper:
+            total -= x[i]
+            x[i] = 0
+            i += 1
+        if i == n:
+            break
+        x[i] += 1
+        total += 1
 
 
 def count_simplex_states(n: int, upper: int) -> int:
