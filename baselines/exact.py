@@ -168,6 +168,7 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     for widen in range(MAX_WIDENINGS + 1):
         est = space.estimate(b) if split is None else split_estimate(space, b)
         check_budget(est, max_states, int(max_memory_mb * 2**20))
+        mdp = out = None  # free the narrower bounds' arrays before building the wider ones
         if split is not None:
             mdp = build_split_mdp(space, split, b)
         else:

@@ -9,6 +9,7 @@ space declares a demand split.
 """
 from __future__ import annotations
 
+import threading
 import time
 from typing import Any, Callable
 
@@ -25,13 +26,16 @@ from .split_mdp import SplitMDP
 
 #: Methods of `exact.solve` this path carries out; the others build the matrix.
 SPLIT_METHODS = ("auto", "rvi", "value_iteration")
-#: Sweeps over more pairs than this share the blocks among numba's threads (NUMBA_NUM_THREADS);
+#: Sweeps over more pairs than this share the units among numba's threads (NUMBA_NUM_THREADS);
 #: smaller ones stay on one thread, where starting the threads would cost more than it saves.
 THREADED_PAIRS = 2_000_000
 
 
 def _sweep(mdp: SplitMDP) -> Callable:
-    threads = mdp.n_pairs > THREADED_PAIRS and numba.config.NUMBA_NUM_THREADS > 1
+    """The threaded sweep for large spaces, from the main thread only: numba's default thread
+    pool must not be entered from two Python threads at once."""
+    threads = (mdp.n_pairs > THREADED_PAIRS and numba.config.NUMBA_NUM_THREADS > 1
+               and threading.current_thread() is threading.main_thread())
     return K.sweep_threads if threads else K.sweep
 
 
