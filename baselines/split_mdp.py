@@ -96,10 +96,6 @@ class SplitMDP:
     def position(self, s: np.ndarray) -> np.ndarray:
         return self.index.states[s].sum(axis=1)
 
-    def order_index(self, choice: np.ndarray) -> np.ndarray:
-        """Order index j per state from global pair indices."""
-        return choice - self.pair_start[:-1][: len(choice)]
-
     def clipped(self, s: np.ndarray, j: np.ndarray) -> np.ndarray:
         return K.clip_mass(s, j, self.blk, self.cmb_start, self.cmb, self.bounds.lower, self.floor, self.p)
 
@@ -107,10 +103,12 @@ class SplitMDP:
         """States reachable from the start when each state uses its pair in `choice`."""
         j = choice - self.pair_start[:-1]
         seen, queue = np.zeros(self.n_states, dtype=bool), np.empty(self.n_states, dtype=np.int64)
-        return K.reachable(seen, queue, j, self.start, self.blk, self.cmb_start, self.cmb, self.bounds.lower, self.floor,
-                           self.p)
+        return K.reachable(seen, queue, j, self.start, self.blk, self.cmb_start, self.cmb, self.bounds.lower,
+                           self.floor, self.p)
 
     def _units(self) -> None:
+        """Runs of blocks that share the expectation per order (`split_sweep.py`), and per
+        (unit, order) its next block and the range of avail + received it needs."""
         b = self.bounds
         self.unit_start, orders = K.unit_starts(self.blk_rest, self.free, self.cmb_start)
         self.uo_start = np.r_[0, np.cumsum(orders)].astype(np.int64)
@@ -121,8 +119,9 @@ class SplitMDP:
             raise RuntimeError("split solver: blocks of a unit lead to different next blocks")
 
     def sweep_args(self) -> tuple:
-        return (self.s_len, self.unit_start, self.uo_start, self.uo, self.blk, self.cmb_start, self.cmb, self.totals, self.bounds.upper,
-                self.bounds.lower, self.vmin, self.cd, self.co, self.floor, self.p, self.tail)
+        """The tables the sweep reads, in the order of `split_sweep.sweep`."""
+        return (self.s_len, self.unit_start, self.uo_start, self.uo, self.blk, self.cmb_start, self.cmb, self.totals,
+                self.bounds.upper, self.bounds.lower, self.vmin, self.cd, self.co, self.floor, self.p, self.tail)
 
 
 # ---------------------------------------------------------------------------- building
@@ -260,7 +259,8 @@ def check_against_step(space: ExactSpace, split: DemandSplit, mdp: SplitMDP, n: 
     if not np.array_equal(np.diff(pstart), np.diff(mdp.pair_start)[s]):
         raise RuntimeError("split solver: the legal orders differ from the space's pairs")
     j = np.arange(len(ps)) - pstart[ps]
-    if not np.array_equal(pa, mdp.actions[j]) or not np.array_equal(at_upper, mdp.at_upper[mdp.pair_start[s[ps]] + j]):
+    same_upper = np.array_equal(at_upper, mdp.at_upper[mdp.pair_start[s[ps]] + j])
+    if not np.array_equal(pa, mdp.actions[j]) or not same_upper:
         raise RuntimeError("split solver: the orders differ from the space's pairs")
     pmf = space.demand_pmf().normalized()
     b = mdp.bounds
@@ -283,15 +283,23 @@ def check_against_step(space: ExactSpace, split: DemandSplit, mdp: SplitMDP, n: 
 #: Peak bytes per state of the split solve, as a base plus a share per state entry: the state
 #: index (entries and keys, and their copies while it is built), the tables (a combo per state
 #: or so), two value arrays, the pair offsets, the choice and the optimal table (measured with
-#: tracemalloc and peak RSS for lost sales, L = 5 and 6: 104 and 120 bytes per state while
-#: building, about 140 at the end; experiments/perf/exact_targets.py).
-SPLIT_BYTES_PER_STATE = 100
+#: tracemalloc and peak RSS: lost sales L = 5 and 6, 104 and 120 bytes per state while building
+#: and about 135 at the end; backorders with the full pipeline, L = 4, 155;
+#: experiments/perf/exact_targets.py, scaling.py).
+SPLIT_BYTES_PER_STATE = 120
 SPLIT_BYTES_PER_ENTRY = 8
+#: Bytes per (state, order, demand) row of the check against the step (`expected_step` arrays).
+CHECK_BYTES_PER_ROW = 160
 
 
 def split_estimate(space: ExactSpace, b: Bounds) -> SizeEstimate:
-    """States and pairs as the space counts them; memory of the matrix-free solve."""
+    """States and pairs as the space counts them; memory of the matrix-free solve, plus the
+    check of a sample of pairs against the step (one chunk of `expected_step` at most)."""
+    from .expectation import CHUNK_ROWS
     est = space.estimate(b)
     n = space.dim
     per_state = SPLIT_BYTES_PER_STATE + SPLIT_BYTES_PER_ENTRY * n
-    return SizeEstimate(est.states, est.pairs, 0, est.states * per_state)
+    support = int(np.count_nonzero(space.demand_pmf().probs))
+    sample_pairs = min(est.pairs, int(1.5 * CHECK_STATES * est.pairs / max(est.states, 1)) + 1)
+    check = min(sample_pairs * support, CHUNK_ROWS) * CHECK_BYTES_PER_ROW
+    return SizeEstimate(est.states, est.pairs, 0, est.states * per_state + check)

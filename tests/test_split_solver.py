@@ -120,3 +120,21 @@ def test_methods_the_split_path_does_not_carry_build_the_matrix():
     res = solve(spec, method="lp")
     assert not isinstance(res.mdp, SplitMDP)
     assert abs(res.cost - solve(spec).cost) <= 1e-5 * res.cost
+
+
+#: every registered model whose example's exact space declares a demand split
+SPLIT_MODELS = sorted(n for n, m in MODELS.items()
+                      if m.exact_space(load_spec({"model": n, **m.example})).demand_split() is not None)
+
+
+def test_the_models_with_a_fixed_lead_time_and_one_demand_coordinate_declare_a_split():
+    assert SPLIT_MODELS == ["backorder", "dual_sourcing", "lost_sales"]
+
+
+@pytest.mark.parametrize("name", SPLIT_MODELS)
+def test_every_declared_split_matches_the_step_and_the_straightforward_solve(name):
+    spec = load_spec({"model": name, **MODELS[name].example})
+    space = spec.model_def.exact_space(spec)
+    mdp = build_split_mdp(space, space.demand_split(), space.initial_bounds())
+    assert check_against_step(space, space.demand_split(), mdp, states=np.arange(mdp.n_states)) == mdp.n_pairs
+    _same(solve(spec), solve(spec, fast=False))
