@@ -20,8 +20,6 @@ from invbench.envs.checks import check_choice, check_number
 from .iteration import (IterationOutcome, discounted_policy_iteration, discounted_value_iteration,
                         relative_value_iteration)
 from .mdp import FiniteMDP, build_mdp, check_budget
-from .split_mdp import build_split_mdp, split_estimate
-from .split_solve import run_split, split_for
 from .table_policy import TablePolicy
 
 DEFAULT_MAX_STATES = 3_000_000
@@ -164,7 +162,10 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     total_iter = 0
     bar = None
     # a space that declares how demand enters its step is iterated without a transition matrix
-    split = split_for(space, method, fast)
+    split = space.demand_split() if fast and method in ("auto", "rvi", "value_iteration") else None
+    if split is not None:  # imported here: the compiled loops load numba, which `import invbench` need not
+        from .split_mdp import build_split_mdp, split_estimate
+        from .split_solve import run_split
     for widen in range(MAX_WIDENINGS + 1):
         est = space.estimate(b) if split is None else split_estimate(space, b)
         check_budget(est, max_states, int(max_memory_mb * 2**20))

@@ -2,10 +2,9 @@
 
 The same iterations, bounds and tie rule as `iteration.py` (Odoni 1969 span bounds on the
 aperiodicity-transformed chain for the average cost, MacQueen 1966 bounds when discounted), with
-the Bellman sweep done by the compiled passes of `split_sweep.py`: two value arrays per state
-live at a time. `split_for` says whether a solve takes this path:
-the caller asked for the quick path, the method is one of these two, and the instance's exact
-space declares a demand split.
+the Bellman sweep done by the compiled loops of `split_sweep.py`: two value arrays per state
+live at a time. `exact.solve` takes this path when the caller asked for the quick path, the
+method is one of these two, and the instance's exact space declares a demand split.
 """
 from __future__ import annotations
 
@@ -17,15 +16,10 @@ import numpy as np
 import numba
 from numba import njit
 
-from invbench.envs.models.demand_split import DemandSplit
-from invbench.envs.models.exact_space import ExactSpace
-
 from . import split_sweep as K
 from .iteration import TAU, IterationOutcome
 from .split_mdp import SplitMDP
 
-#: Methods of `exact.solve` this path carries out; the others build the matrix.
-SPLIT_METHODS = ("auto", "rvi", "value_iteration")
 #: Sweeps over more pairs than this share the units among numba's threads (NUMBA_NUM_THREADS);
 #: smaller ones stay on one thread, where starting the threads would cost more than it saves.
 THREADED_PAIRS = 2_000_000
@@ -37,13 +31,6 @@ def _sweep(mdp: SplitMDP) -> Callable:
     threads = (mdp.n_pairs > THREADED_PAIRS and numba.config.NUMBA_NUM_THREADS > 1
                and threading.current_thread() is threading.main_thread())
     return K.sweep_threads if threads else K.sweep
-
-
-def split_for(space: ExactSpace, method: str, fast: bool) -> DemandSplit | None:
-    """The declared split to solve with, or None for the matrix path."""
-    if not fast or method not in SPLIT_METHODS:
-        return None
-    return space.demand_split()
 
 
 @njit(cache=True)

@@ -14,7 +14,6 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
-from numba import njit
 
 from invbench.envs.errors import SpecError
 
@@ -68,27 +67,9 @@ def simplex_states(n: int, upper: int) -> np.ndarray:
     the first least), so indexing them needs no sort."""
     out = np.empty((count_simplex_states(n, upper), n), dtype=np.int64)
     if len(out) and n:
-        _fill_simplex(out, upper)
+        from .simplex_fill import fill_simplex  # compiled on first use; keeps numba out of imports
+        fill_simplex(out, upper)
     return out
-
-
-@njit(cache=True)
-def _fill_simplex(out, upper):
-    n = out.shape[1]
-    x = np.zeros(n, dtype=np.int64)
-    total = 0
-    for row in range(out.shape[0]):
-        out[row] = x
-        # next row: raise the first entry that can grow, resetting those before it
-        i = 0
-        while i < n and total == upper:
-            total -= x[i]
-            x[i] = 0
-            i += 1
-        if i == n:
-            break
-        x[i] += 1
-        total += 1
 
 
 def count_simplex_states(n: int, upper: int) -> int:
