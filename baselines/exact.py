@@ -68,6 +68,8 @@ class SolveResult:
 
 def reachable_states(mdp: FiniteMDP, choice: np.ndarray) -> np.ndarray:
     """States reachable from the start state when the pairs `choice` are used."""
+    if hasattr(mdp, "reachable"):  # a matrix-free MDP (`split_mdp.py`) finds them itself
+        return mdp.reachable(choice)
     P = mdp.P[choice]
     return np.sort(breadth_first_order(P, mdp.start, directed=True, return_predecessors=False))
 
@@ -122,8 +124,11 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     (HiGHS, tiny instances), "value_iteration" or "policy_iteration" (discounted only).
     full_pipeline: for backorders, solve on the full pipeline state instead of the inventory
     position (for checking that reduction; far larger).
-    fast: use the model's structured build where it has one (same numbers, much quicker);
-    False uses the straightforward build, stepping every (state, order, demand).
+    fast: where the model's exact space declares a demand split (`demand_split()`: lost sales,
+    backorders, dual sourcing with fixed lead times), RVI / value iteration run without a
+    transition matrix (`split_mdp.py`, `split_solve.py`); otherwise the model's structured build
+    where it has one. Same numbers, much quicker and smaller. False uses the straightforward
+    build, stepping every (state, order, demand).
     A model whose exact space offers `certified_solve` (an exact method of its own, e.g. the
     serial chain's decomposition) is solved by it when method is "auto", no bounds are given
     and fast is True; any other choice builds and solves the MDP.
@@ -159,10 +164,19 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
     notes: list[str] = []
     total_iter = 0
     bar = None
+    # a space that declares how demand enters its step is iterated without a transition matrix
+    split = space.demand_split() if fast and method in ("auto", "rvi", "value_iteration") else None
+    if split is not None:  # imported here: the compiled loops load numba, which `import invbench` need not
+        from .split_mdp import build_split_mdp, split_estimate
+        from .split_solve import run_split
     for widen in range(MAX_WIDENINGS + 1):
-        est = space.estimate(b)
+        est = space.estimate(b) if split is None else split_estimate(space, b)
         check_budget(est, max_states, int(max_memory_mb * 2**20))
-        mdp = (space.fast_build(b) if fast else None) or build_mdp(space, b)
+        mdp = out = None  # free the narrower bounds' arrays before building the wider ones
+        if split is not None:
+            mdp = build_split_mdp(space, split, b)
+        else:
+            mdp = (space.fast_build(b) if fast else None) or build_mdp(space, b)
         on_iter = None
         if progress:
             from tqdm import tqdm
@@ -172,7 +186,8 @@ def solve(spec: Any, *, rel_tol: float = 1e-6, method: str = "auto", max_states:
                 _bar.update(1)
                 if it % 10 == 0:
                     _bar.set_postfix(gap=f"{(hi - lo) / max(abs(lo), 1e-12):.1e}")
-        out = _run(mdp, spec, method, rel_tol, on_iter)
+        out = (_run(mdp, spec, method, rel_tol, on_iter) if split is None
+               else run_split(mdp, spec.discount, rel_tol, on_iter))
         if bar is not None:
             bar.close()
         total_iter += out.iterations

@@ -25,6 +25,7 @@ if TYPE_CHECKING:
     from invbench.envs.demand import DiscretePmf
     from invbench.envs.spec import InstanceSpec
     from .base import InventoryModel, Outcome
+    from .demand_split import DemandSplit
 
 
 @dataclass(frozen=True)
@@ -61,17 +62,15 @@ PEAK_BYTES_PER_NNZ = 56
 
 
 def simplex_states(n: int, upper: int) -> np.ndarray:
-    """All x in Z_+^n with sum(x) <= upper, as an int64 array [S, n]."""
-    states = np.zeros((1, 0), dtype=np.int64)
-    sums = np.zeros(1, dtype=np.int64)
-    for _ in range(n):
-        room = upper - sums
-        reps = room + 1
-        idx = np.repeat(np.arange(len(states)), reps)
-        vals = np.arange(reps.sum()) - np.repeat(np.cumsum(reps) - reps, reps)
-        states = np.column_stack([states[idx], vals])
-        sums = sums[idx] + vals
-    return states
+    """All x in Z_+^n with sum(x) <= upper, as an int64 array [S, n].
+
+    Rows come in the order of a state index (`state_index.py`: the last entry most significant,
+    the first least), so indexing them needs no sort."""
+    out = np.empty((count_simplex_states(n, upper), n), dtype=np.int64)
+    if len(out) and n:
+        from .simplex_fill import fill_simplex  # compiled on first use; keeps numba out of imports
+        fill_simplex(out, upper)
+    return out
 
 
 def count_simplex_states(n: int, upper: int) -> int:
@@ -170,6 +169,12 @@ class ExactSpace:
 
     def fast_build(self, b: Bounds) -> "FiniteMDP | None":
         """A structured build giving the same MDP as the generic one, or None."""
+        return None
+
+    def demand_split(self) -> "DemandSplit | None":
+        """Opt-in: how `step` splits into a fixed post-decision part and demand acting on the
+        first coordinate (`demand_split.py`), so the solver needs no transition matrix; None
+        where that does not hold for this instance."""
         return None
 
     def binding(self, mdp: "FiniteMDP", chosen: np.ndarray) -> tuple[bool, bool]:

@@ -52,9 +52,12 @@ class StateIndex:
     def __init__(self, codec: StateCodec, states: np.ndarray) -> None:
         self.codec = codec
         keys = codec.encode(states)
-        order = np.argsort(keys, kind="stable")
-        self.keys = keys[order]
-        self.states = np.asarray(states, dtype=np.int64)[order]
+        states = np.asarray(states, dtype=np.int64)
+        if len(keys) > 1 and not np.all(keys[1:] > keys[:-1]):  # rows given in order keep their arrays
+            order = np.argsort(keys, kind="stable")
+            keys, states = keys[order], states[order]
+        self.keys = keys
+        self.states = states
 
     def __len__(self) -> int:
         return len(self.keys)

@@ -9,6 +9,7 @@ from invbench.envs.newsvendor import lead_time_demand_pmf, order_up_to_level
 from invbench.envs.random_inputs import JointOutcomes
 
 from ..base import InventoryModel, Outcome
+from ..demand_split import DemandSplit, fixed_lead_time, pipeline_split
 from ..exact_space import (Bounds, ExactSpace, SizeEstimate, BYTES_PER_NNZ, BYTES_PER_PAIR,
                            count_simplex_states, eoq_room, simplex_states)
 from ..pipeline import layout_labels, ordering_cost, receive
@@ -152,6 +153,10 @@ class BackorderPositionSpace(ExactSpace):
         transitions = pairs * support
         return SizeEstimate(states, pairs, transitions, transitions * BYTES_PER_NNZ + pairs * BYTES_PER_PAIR)
 
+    def demand_split(self) -> DemandSplit | None:
+        """The position moves as a zero-lead-time net inventory: order and stock meet demand."""
+        return None if fixed_lead_time(self.spec) is None else pipeline_split(0, 1)
+
     def table_keys(self, obs: np.ndarray) -> np.ndarray:
         return obs.sum(axis=1, keepdims=True)
 
@@ -198,3 +203,8 @@ class BackorderFullSpace(ExactSpace):
         pairs = count_simplex_states(n + 1, span) // q + states
         transitions = pairs * support
         return SizeEstimate(states, pairs, transitions, transitions * BYTES_PER_NNZ + pairs * BYTES_PER_PAIR)
+
+    def demand_split(self) -> DemandSplit | None:
+        """Demand meets the net inventory only; the pipeline moves as `pipeline.advance` says."""
+        L = fixed_lead_time(self.spec)
+        return None if L is None else pipeline_split(L, self.dim)

@@ -15,6 +15,7 @@ import numpy as np
 from invbench.envs.errors import SpecError
 from invbench.envs.newsvendor import order_up_to_level
 
+from ..demand_split import DemandSplit, fixed_lead_time
 from ..exact_space import BYTES_PER_NNZ, BYTES_PER_PAIR, Bounds, ExactSpace, SizeEstimate
 from ..state_index import StateCodec, StateIndex
 
@@ -107,6 +108,30 @@ class DualSourcingSpace(ExactSpace):
         below = nxt[:, 0] < b.lower
         nxt[:, 0] = np.maximum(nxt[:, 0], b.lower)
         return below
+
+    def demand_split(self) -> DemandSplit | None:
+        """On the merged state demand meets the net inventory only: the expedited order adds to
+        it at once when le = 0, the slot arriving next period is received, and each order joins
+        the slot of its lead time less one (u = [net, slots 1 .. lr-1, regular, expedited])."""
+        if fixed_lead_time(self.spec) is None:
+            return None
+        lr, le = self.spec.lead_time, self.spec.expedited_lead_time
+        n = self.dim
+        avail, recv = np.zeros(n + 2, dtype=np.int64), np.zeros(n + 2, dtype=np.int64)
+        rest = np.zeros((n - 1, n + 2), dtype=np.int64)
+        avail[0] = 1
+        for col, ell in ((n, lr), (n + 1, le)):  # the regular and the expedited order
+            if ell == 0:
+                avail[col] = 1
+            elif ell == 1:
+                recv[col] = 1
+            else:
+                rest[ell - 2, col] = 1
+        if n >= 2:
+            recv[1] = 1
+        for t in range(n - 2):
+            rest[t, t + 2] = 1
+        return DemandSplit(avail, recv, rest)
 
     # ---------------------------------------------------------------- budget and checks
     def estimate(self, b: Bounds) -> SizeEstimate:

@@ -9,6 +9,7 @@ from invbench.envs.errors import SpecError
 from invbench.envs.newsvendor import order_up_to_level
 
 from ..base import InventoryModel, Outcome
+from ..demand_split import DemandSplit, fixed_lead_time, pipeline_split
 from ..exact_space import (PEAK_BYTES_PER_NNZ, Bounds, ExactSpace, SizeEstimate, count_simplex_states,
                            eoq_room)
 from ..pipeline import layout_labels, ordering_cost, receive
@@ -109,3 +110,8 @@ class LostSalesSpace(ExactSpace):
     def fast_build(self, b: Bounds) -> "FiniteMDP":
         from .fast_build import build_fast
         return build_fast(self, b)
+
+    def demand_split(self) -> DemandSplit | None:
+        """Demand meets the on-hand stock only; the pipeline moves as `pipeline.advance` says."""
+        L = fixed_lead_time(self.spec)
+        return None if L is None else pipeline_split(L, self.dim)
