@@ -32,6 +32,17 @@ _MAX_SUPPORT: ContextVar[int] = ContextVar("invbench_max_demand_support", defaul
 _DIRECT_CONVOLVE_MAX = 4_000_000
 
 
+def pmf_mean(probs: Any) -> float:
+    """Mean of a pmf on 0, 1, ..., len(probs) - 1."""
+    return float(np.dot(np.arange(len(probs)), probs))
+
+
+def pmf_var(probs: Any) -> float:
+    """Variance of a pmf on 0, 1, ..., len(probs) - 1."""
+    k = np.arange(len(probs))
+    return float(np.dot((k - pmf_mean(probs)) ** 2, probs))
+
+
 @dataclass(frozen=True)
 class DiscretePmf:
     """A pmf on 0..len(probs)-1; `truncation_mass` is the probability dropped beyond the end."""
@@ -45,13 +56,11 @@ class DiscretePmf:
 
     @property
     def mean(self) -> float:
-        return float(np.dot(np.arange(len(self.probs)), self.probs))
+        return pmf_mean(self.probs)
 
     @property
     def var(self) -> float:
-        k = np.arange(len(self.probs))
-        m = self.mean
-        return float(np.dot((k - m) ** 2, self.probs))
+        return pmf_var(self.probs)
 
     def normalized(self) -> np.ndarray:
         """Probabilities rescaled to sum to one (used by solvers; the dropped mass is reported)."""

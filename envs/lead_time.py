@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any, Mapping
 
 import numpy as np
 
+from .demand import pmf_mean, pmf_var
 from .errors import SpecError
 
 if TYPE_CHECKING:
@@ -45,12 +46,11 @@ class LeadTimePmf:
 
     @property
     def mean(self) -> float:
-        return float(np.dot(np.arange(len(self.probs)), self.probs))
+        return pmf_mean(self.probs)
 
     @property
     def var(self) -> float:
-        k = np.arange(len(self.probs))
-        return float(np.dot((k - self.mean) ** 2, self.probs))
+        return pmf_var(self.probs)
 
     def survival(self) -> np.ndarray:
         """S(k) = P(L > k) for k = 0..longest, summed from the tail (no cancellation)."""

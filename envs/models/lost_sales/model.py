@@ -1,7 +1,7 @@
 """The periodic-review lost-sales model: unmet demand is lost at a cost per unit."""
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Callable
 
 import numpy as np
 
@@ -96,14 +96,19 @@ class LostSalesSpace(ExactSpace):
         return Bounds(upper=max(order_up_to_level(self.spec) + eoq_room(self.spec) + q, q))
 
     def estimate(self, b: Bounds) -> SizeEstimate:
-        # pairs with stock v: (pipeline, order) combinations with sum <= B - v, thinned by the
-        # case pack; each has min(v, max demand) + 1 distinct next states.
+        return self.sizes(b, stock_meets_demand=lambda v: v, outcomes=1)
+
+    def sizes(self, b: Bounds, stock_meets_demand: "Callable[[int], int]", outcomes: int) -> SizeEstimate:
+        """Pairs with stock v: (pipeline, order) combinations with sum <= B - v, thinned by the
+        case pack; each has min(stock that meets demand, max demand) + 1 distinct next states
+        per value of the other random inputs (`outcomes`)."""
         n, B, q = self.dim, b.upper, self.spec.case_pack
         states = count_simplex_states(n, B)
         dmax = self.spec.demand.pmf().support_max
         per_v = [count_simplex_states(n, B - v) for v in range(B + 1)]
         pairs = sum(per_v) // q + states
-        transitions = sum(c * (min(v, dmax) + 1) for v, c in enumerate(per_v)) // q + states
+        transitions = outcomes * (sum(c * (min(stock_meets_demand(v), dmax) + 1) for v, c in enumerate(per_v)) // q
+                                  + states)
         # measured peak of the fast build: about 51-54 bytes per stored transition (L = 4, 5)
         return SizeEstimate(states, pairs, transitions, transitions * PEAK_BYTES_PER_NNZ)
 

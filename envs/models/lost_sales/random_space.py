@@ -1,35 +1,32 @@
-"""Exact space of lost sales with a random lead time (orders in sequence): the generic
-sum-bounded space stepped over demand x cut-off. It has no structured build (the fast build
-and any other structured path of `LostSalesSpace` assume a fixed lead time), so the MDP is
-built by the one expectation routine.
+"""Exact space of lost sales with a random lead time (orders in sequence): the sum-bounded
+space of `LostSalesSpace`, stepped over demand x cut-off. It has no structured build or demand
+split (both assume a fixed lead time), so the MDP is built by the one expectation routine.
 """
 from __future__ import annotations
 
-from invbench.envs.newsvendor import order_up_to_level
+from typing import TYPE_CHECKING
 
-from ..exact_space import PEAK_BYTES_PER_NNZ, Bounds, ExactSpace, SizeEstimate, count_simplex_states, eoq_room
+from ..exact_space import Bounds, SizeEstimate
+from .model import LostSalesSpace
+
+if TYPE_CHECKING:
+    from invbench.baselines.mdp import FiniteMDP
+    from ..demand_split import DemandSplit
 
 
-class RandomLeadTimeSpace(ExactSpace):
-    """States [on-hand + sure arrival, orders out by age] with entries summing to <= B."""
+class RandomLeadTimeSpace(LostSalesSpace):
+    """States [on-hand + sure arrival, orders out by age] with entries summing to <= B. The
+    first bound comes from the backorder order-up-to level as for a fixed lead time, here on
+    demand over L + 1 periods mixed over the lead-time pmf (`LostSalesSpace.initial_bounds`)."""
 
     representation = "lost_sales_random_lead_time"
 
-    def initial_bounds(self) -> Bounds:
-        """As for a fixed lead time, from the backorder order-up-to level, here on demand over
-        L + 1 periods mixed over the lead-time pmf; a first guess that `exact.solve` checks
-        after solving and widens when it binds."""
-        q = self.spec.case_pack
-        return Bounds(upper=max(order_up_to_level(self.spec) + eoq_room(self.spec) + q, q))
-
     def estimate(self, b: Bounds) -> SizeEstimate:
-        # As LostSalesSpace.estimate, times the cut-off values: for each, a pair has at most
-        # min(available stock, max demand) + 1 next states.
-        n, B, q = self.dim, b.upper, self.spec.case_pack
-        states = count_simplex_states(n, B)
-        dmax = self.spec.demand.pmf().support_max
-        per_v = [count_simplex_states(n, B - v) for v in range(B + 1)]
-        pairs = sum(per_v) // q + states
-        cuts = self.extra_outcomes()
-        transitions = cuts * (sum(c * (min(B, dmax) + 1) for v, c in enumerate(per_v)) // q + states)
-        return SizeEstimate(states, pairs, transitions, transitions * PEAK_BYTES_PER_NNZ)
+        # for each cut-off value any stock up to B may arrive and meet demand
+        return self.sizes(b, stock_meets_demand=lambda v: b.upper, outcomes=self.extra_outcomes())
+
+    def fast_build(self, b: Bounds) -> "FiniteMDP | None":
+        return None
+
+    def demand_split(self) -> "DemandSplit | None":
+        return None
