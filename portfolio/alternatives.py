@@ -5,7 +5,10 @@ was chosen on is model A; each alternative B keeps everything else of the instan
 * `other_family`: the best other family (by AIC) fitted to the same sales history;
 * `bootstrap`: A's family fitted again to a bootstrap resample of the item's own days (days drawn
   with replacement, each with its stock-out flag), `replicates` times.
-A random lead time is not offered: invbench has no model with random lead times yet.
+* `random_lead_time`: A's demand, and a lead time that is L - 1, L or L + 1 periods with
+  probability 1/4, 1/2, 1/4 (same mean L, variance 1/2; L = 0: 0 or 1 period, 1/2 each), orders
+  arriving in sequence (Kaplan 1970's cut-off, as `lead_time = { pmf = [...] }` does it); only for
+  models that take a random lead time.
 """
 from __future__ import annotations
 
@@ -19,9 +22,7 @@ from invbench.envs.errors import SpecError
 from invbench.envs.spec import InstanceSpec, default_max_order, spec_from_dict
 from invbench.envs.demand import Demand
 
-KINDS = ("wider", "other_family", "bootstrap")
-#: Said wherever the alternatives are listed, so the gap is never silent.
-RANDOM_LEAD_TIME_NOTE = ("random lead time: left out, invbench has no model with random lead times yet")
+KINDS = ("wider", "other_family", "bootstrap", "random_lead_time")
 #: Instance name of an alternative: ITEM~KIND or ITEM~bootstrap-R.
 SEPARATOR = "~"
 #: distribution written by `invbench fit` -> the family that wrote it
@@ -70,6 +71,27 @@ def wider(a: InstanceSpec, item: str, factor: float) -> Alternative | str:
         law = {"distribution": "poisson", "mean": mean}
         note = f"Poisson, variance {mean:.4g} (> {var:.4g})"
     return Alternative(item, "wider", 0, _with_demand(a, law, f"{item}{SEPARATOR}wider"), note)
+
+
+def lead_time_spread(L: int) -> list[float]:
+    """The pmf of the `random_lead_time` alternative of a fixed lead time L."""
+    if L == 0:
+        return [0.5, 0.5]
+    return [0.0] * (L - 1) + [0.25, 0.5, 0.25]
+
+
+def random_lead_time(a: InstanceSpec, item: str) -> Alternative | str:
+    """A with its fixed lead time spread over L - 1, L, L + 1; a note (str) where that is not possible."""
+    if not a.model_def.random_lead_time:
+        return f"model {a.model} takes no random lead time"
+    if a.lead_time_law is not None:
+        return "the lead time is already random"
+    pmf = lead_time_spread(int(a.lead_time))
+    d = a.to_dict()
+    d.update(name=f"{item}{SEPARATOR}random_lead_time", lead_time={"pmf": pmf})
+    law = spec_from_dict(d).lead_time_law
+    note = f"lead time {law.describe()}, mean {law.mean:g} (A: {a.lead_time}), in sequence"
+    return Alternative(item, "random_lead_time", 0, spec_from_dict(d), note)
 
 
 def _sample(units: np.ndarray, censored: np.ndarray) -> Any:
@@ -139,6 +161,8 @@ def alternatives_for(a: InstanceSpec, item: str, history: Any | None, *, varianc
     try:
         if "wider" in kinds:
             add("wider", wider(a, item, variance_factor))
+        if "random_lead_time" in kinds:
+            add("random_lead_time", random_lead_time(a, item))
         if history is None:
             notes += [f"{k}: no sales history for this item (give --sales)" for k in ("other_family", "bootstrap") if k in kinds]
             return alts, notes

@@ -37,8 +37,8 @@ def register(subparsers: Any) -> None:
     p.add_argument("--max-states", default="500000",
                    help="largest state space for which the exact optimum is computed (default 500000)")
     p.add_argument("--no-robustness", action="store_true", help="skip the robustness stage")
-    p.add_argument("--alternatives", default="wider,other_family,bootstrap",
-                   help="alternative laws for the robustness stage (default: wider,other_family,bootstrap)")
+    p.add_argument("--alternatives", default="wider,other_family,bootstrap,random_lead_time",
+                   help="alternative models for the robustness stage (default: wider,other_family,bootstrap,random_lead_time)")
     p.add_argument("--variance-factor", default="2", help="variance of the `wider` law over the item's (default 2)")
     p.add_argument("--bootstrap", default="3", help="bootstrap resamples per item (default 3; 0: none)")
     p.add_argument("--seed", default="0", help="seed of the bootstrap resamples and of simulated evaluations")

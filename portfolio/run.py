@@ -18,7 +18,7 @@ import pandas as pd
 from invbench.experiments.runner import BenchResult, run_bench
 from invbench.experiments.store import atomic_write, to_jsonable
 
-from .alternatives import KINDS, RANDOM_LEAD_TIME_NOTE, Alternative, alternatives_for
+from .alternatives import KINDS, Alternative, alternatives_for
 from .items import PortfolioItem
 from .suites import choice_suite, classical_policies, robustness_suite, suite_name
 from .tables import choice_table, robustness_table, write_table
@@ -102,7 +102,7 @@ def run_portfolio(items: Sequence[PortfolioItem], out: str | Path, *, histories:
     failed = list(first.failed)
     alts: list[Alternative] = []
     robust = pd.DataFrame()
-    left_out = [RANDOM_LEAD_TIME_NOTE]
+    left_out: list[str] = []
     if robustness:
         ok = choice[choice["status"] == "ok"]
         picks = {}

@@ -114,8 +114,11 @@ def fixed_policy(spec: InstanceSpec, params: dict[str, Any], seed: int, evaluati
     policies (PIL, myopic) read the demand law they were built for."""
     from invbench.baselines.policies.registry import make_policy
 
-    a = spec_from_dict(params["model_a"])
-    return make_policy(a, params["policy"], params.get("params") or None)
+    a = params["model_a"]
+    b = spec.to_dict()
+    if a.get("lead_time") != b.get("lead_time"):  # B's lead time (its state layout), A's demand law
+        a = {**a, "lead_time": b["lead_time"]}
+    return make_policy(spec_from_dict(a), params["policy"], params.get("params") or None)
 
 
 def robustness_suite(name: str, choices: Mapping[str, tuple[InstanceSpec, str, dict[str, Any]]],
@@ -123,7 +126,10 @@ def robustness_suite(name: str, choices: Mapping[str, tuple[InstanceSpec, str, d
                      description: str = "") -> tuple[PairedSuite, dict[str, str]]:
     """Stage 2: for every alternative B of an item, B's optimum and the item's chosen policy
     (`choices[item] = (model A, policy name, parameters)`) measured on B. Alternatives whose
-    optimum is out of reach are left out (no regret without it): returns label -> why."""
+    optimum is out of reach, or that the chosen policy does not support (e.g. a random lead
+    time), are left out (no regret without them): returns label -> why."""
+    from invbench.baselines.policies.registry import supports
+
     specs: list[InstanceSpec] = []
     entries: list[PolicyEntry] = [OPTIMUM]
     entry_of: dict[str, int] = {}
@@ -133,6 +139,8 @@ def robustness_suite(name: str, choices: Mapping[str, tuple[InstanceSpec, str, d
         if alt.item not in choices:
             continue
         why = optimum_refusal(alt.spec, max_states)
+        if not why and not supports(choices[alt.item][1], alt.spec):
+            why = f"the chosen policy {choices[alt.item][1]} does not support this instance"
         if why:
             left_out[alt.spec.label] = why
             continue
