@@ -72,7 +72,7 @@ def receive(spec: "InstanceSpec", state: np.ndarray, action: np.ndarray, demand:
         return Receipt(state, order, demand, available, lambda end: advance(state, order, end, L))
     from .random_lead_time import advance_random, receive_random
     state, order, demand, _ = stock_inputs(state, action, demand, 1)
-    arrived, rest, new_rest, _ = receive_random(spec, state, order, inputs)
+    arrived, rest, new_rest = receive_random(spec, state, order, inputs)
     M = spec.longest_lead_time
     return Receipt(state, order, demand, state[:, 0] + arrived,
                    lambda end: advance_random(state, rest, new_rest, end, M), {"arrived": arrived})

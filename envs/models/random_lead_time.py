@@ -62,16 +62,16 @@ def arrival_mask(longest: int, rows: int, inputs: dict[str, np.ndarray]) -> np.n
 
 
 def receive_random(spec: "InstanceSpec", state: np.ndarray, order: np.ndarray,
-                   inputs: dict[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """(arrived before demand, orders still out [B, M-1] by state column, the new order if
-    still out, nothing else): the period's arrivals for the random-lead-time layout."""
+                   inputs: dict[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The period's arrivals in the random-lead-time layout: (units arrived before demand
+    [B], the pipeline orders still out [B, M-1] by state column, the new order if still out [B])."""
     M = spec.longest_lead_time
     mask = arrival_mask(M, len(state), inputs)
     pipe = state[:, 1:] if M >= 1 else np.zeros((len(state), 0), dtype=np.int64)
     arrive_pipe = mask[:, M - np.arange(1, M)]  # column i holds the order aged M - i
     arrive_new = mask[:, 0] if M >= 1 else np.ones(len(state), dtype=bool)
     arrived = np.where(arrive_pipe, pipe, 0).sum(axis=1) + np.where(arrive_new, order, 0)
-    return arrived, np.where(arrive_pipe, 0, pipe), np.where(arrive_new, 0, order), mask
+    return arrived, np.where(arrive_pipe, 0, pipe), np.where(arrive_new, 0, order)
 
 
 def advance_random(state: np.ndarray, rest: np.ndarray, new_rest: np.ndarray, end_level: np.ndarray,
