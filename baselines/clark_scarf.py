@@ -44,7 +44,7 @@ class EchelonCost:
 
 
 def _check(spec: InstanceSpec) -> None:
-    if spec.model != "serial":
+    if not {"lead_times", "holding_costs"} <= set(spec.model_def.fields):
         raise SpecError(f"instance.model: the Clark-Scarf decomposition is for the serial model, got {spec.model!r}")
 
 

@@ -45,7 +45,7 @@ def backorder_cost(spec: InstanceSpec, S: int) -> Optimum:
     Ordering: every unit demanded is ordered once (unit cost x mean demand), and an order is
     placed with probability (1/q) * sum_{k=1..q} P(D >= k).
     """
-    if spec.model != "backorder":
+    if spec.model_def.shortfall != "backordered":
         raise ValueError("backorder_cost: defined for the backorder model")
     q = spec.case_pack
     ys = np.arange(S - q + 1, S + 1)
@@ -107,7 +107,7 @@ class BaseStockPolicy(ClassicalPolicy):
         cost (a random lead time in sequence: G on demand over L + 1 periods mixed over L,
         exact since the long-run cost is the mean of G over the position). Otherwise a local search on S from the fractile level with exact evaluation:
         the lost-sales cost in S is taken as unimodal (common practice)."""
-        if spec.model == "backorder" and analytic_applies(spec):
+        if spec.model_def.shortfall == "backordered" and analytic_applies(spec):
             S = best_backorder_level(spec)
             pol = cls(spec, S)
             pol.optimum = backorder_cost(spec, S)

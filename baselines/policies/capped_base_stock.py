@@ -65,7 +65,7 @@ class CappedBaseStockPolicy(ClassicalPolicy):
         # In steady state a base-stock order is at most one period's demand plus the rounding rest.
         dmax = spec.demand.pmf().support_max
         k_free = min(k_cap, (q - 1 + dmax) // q)
-        if spec.model == "backorder":
+        if spec.model_def.shortfall == "backordered":
             pol = cls(spec, base.S, k_free * q)
             if base.optimum is not None:
                 pol.optimum = replace(base.optimum, note="backorders: the uncapped base-stock optimum")

@@ -27,11 +27,11 @@ def evaluate_constant_order(spec: InstanceSpec, r: int, max_states: int | None =
     """
     from invbench.baselines.policy_eval import evaluate_exact  # heavy; only when evaluating
 
-    if spec.model == "backorder":
+    if spec.model_def.shortfall == "backordered":
         raise ValueError("evaluate_constant_order: no finite long-run cost under backorders")
     # Perishable stock is bounded by r x shelf life (everything older perishes), so any r is
     # stable there; under lost sales only r below mean demand is.
-    if spec.model == "lost_sales" and r > 0 and r >= normalized_mean(spec):
+    if not spec.model_def.perishes and r > 0 and r >= normalized_mean(spec):
         raise BudgetError(f"constant order {r}: not below mean demand, stock grows without bound")
     kw = {} if max_states is None else {"max_states": max_states}
     return evaluate_exact(spec, ConstantOrderPolicy(spec, r), **kw)
@@ -66,7 +66,7 @@ class ConstantOrderPolicy(ClassicalPolicy):
         """Best r among the case-pack multiples below mean demand (the stable ones), by a
         local search from mean - one standard deviation with exact evaluation; the cost in r
         is taken as unimodal (common practice)."""
-        if spec.model == "backorder":
+        if spec.model_def.shortfall == "backordered":
             raise SpecError("instance.model: constant_order cannot be optimised for backorders (no constant "
                             "order has a finite long-run average cost); give r yourself, or use base_stock")
         from ._search import ExactScorer, pattern_search
@@ -74,7 +74,7 @@ class ConstantOrderPolicy(ClassicalPolicy):
         q = spec.case_pack
         mean = normalized_mean(spec)
         k_max = max(int(math.ceil(mean / q)) - 1, 0)  # largest k with k*q < mean
-        if spec.model == "perishable":
+        if spec.model_def.perishes:
             k_max = int(math.ceil(mean / q))  # waste makes r above the mean pointless
         k_max = min(k_max, spec.order_cap_units // q)
         start = min(max(int((mean - math.sqrt(spec.demand.var)) // q), 0), k_max)

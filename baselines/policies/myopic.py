@@ -126,7 +126,7 @@ class MyopicPolicy(ClassicalPolicy):
         self._order_cost = parts.ordering
         # Lost sales and backorders reach the arrival period with a one-number state; other
         # models (stock by age) keep the whole state.
-        self._by_level = spec.model in ("lost_sales", "backorder")
+        self._by_level = spec.model_def.stock_then_pipeline
         if self._by_level:
             self._g = _PeriodCost(spec)
         else:

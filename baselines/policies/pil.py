@@ -52,7 +52,7 @@ class PILPolicy(ClassicalPolicy):
 
     def __init__(self, spec: InstanceSpec, target: float) -> None:
         self.spec = spec
-        lo = 0.0 if spec.model == "lost_sales" else None
+        lo = 0.0 if spec.model_def.shortfall == "lost" else None
         self.target = num_param("target", target, lo)
         self._cache = StateCache()
 
@@ -84,7 +84,7 @@ class PILPolicy(ClassicalPolicy):
         from the base-stock optimum (see the module docstring)."""
         from .base_stock import BaseStockPolicy
 
-        if spec.model == "backorder" and spec.lead_time_law is None:
+        if spec.model_def.shortfall == "backordered" and spec.lead_time_law is None:
             base = BaseStockPolicy.optimize(spec, progress=progress, max_states=max_states)
             mu_L = spec.lead_time * normalized_mean(spec)
             # Rounded: the float noise of mu_L (~1e-9) would only clutter the reported target.

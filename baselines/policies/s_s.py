@@ -78,15 +78,15 @@ class SSPolicy(ClassicalPolicy):
                  max_states: int | None = None) -> "SSPolicy":
         """Best (s, S); see the module docstring for which method applies."""
         if spec.shortage_cost <= 0:
-            if spec.model == "backorder":
+            if spec.model_def.shortfall == "backordered":
                 raise SpecError("instance.shortage_cost: must be > 0 to optimise s_S under backorders")
             return cls(spec, -1, 0)  # nothing is worth stocking: never order
         if spec.holding_cost <= 0 and spec.fixed_order_cost > 0:
             # Free storage makes ever larger batches pay: the optimum runs off to infinity.
             raise SpecError("instance.holding_cost: must be > 0 to optimise s_S with a fixed order cost")
-        twin = spec if spec.model == "backorder" else spec.with_(model="backorder")
+        twin = spec.model_def.backorder_twin(spec)
         zf = zheng_federgruen(twin)
-        if spec.model == "backorder" and _formula_applies(spec, zf):
+        if spec.model_def.shortfall == "backordered" and _formula_applies(spec, zf):
             pol = cls(spec, zf.s, zf.S)
             pol.optimum = ss_backorder_cost(spec, zf.s, zf.S)
             return pol
@@ -94,7 +94,7 @@ class SSPolicy(ClassicalPolicy):
 
         S0 = max(zf.S, 1)
         gap0 = min(max(zf.S - zf.s, 1), S0 + 1)
-        low_s = -1 if spec.model == "lost_sales" else None
+        low_s = -1 if spec.model_def.shortfall == "lost" else None
 
         def clamp(x: tuple[int, ...]) -> tuple[int, int]:
             S, gap = max(x[0], 1), max(x[1], 1)

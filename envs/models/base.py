@@ -166,6 +166,14 @@ class InventoryModel:
         random input other than demand that `random_inputs` declares (none for most models)."""
         raise NotImplementedError
 
+    #: stock leaves by age as well as by demand (what is kept is bounded by the shelf life)
+    perishes: bool = False
+
+    def backorder_twin(self, spec: "InstanceSpec") -> "InstanceSpec | None":
+        """The same instance with unmet demand backordered, where that is a model of the project
+        (bounds and first guesses of some classical policies come from it); None elsewhere."""
+        return None
+
     def lead_time_text(self, spec: "InstanceSpec") -> str:
         """The lead time(s) for a short instance label: "2", "~pmf(0.2,0.5,0.3)" for a random
         one; a model with several lead times says them all."""

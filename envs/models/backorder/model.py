@@ -49,6 +49,9 @@ class BackorderModel(InventoryModel):
     def units_out(self, outcome: Outcome, demand: np.ndarray) -> np.ndarray:
         return np.asarray(demand, dtype=np.int64)
 
+    def backorder_twin(self, spec: "InstanceSpec") -> "InstanceSpec":
+        return spec
+
     def state_labels(self, spec: "InstanceSpec") -> list[str]:
         return layout_labels(spec, "net inventory (on-hand - backorders) after the receipt"
                              if spec.lead_time_law is None else "net inventory (on-hand - backorders)")

@@ -46,6 +46,9 @@ class LostSalesModel(InventoryModel):
                "demand": {"distribution": "poisson", "mean": 2.0}}
     variants = {"random_lead_time": {**example, "lead_time": {"pmf": [0.2, 0.5, 0.3]}}}
 
+    def backorder_twin(self, spec: "InstanceSpec") -> "InstanceSpec":
+        return spec.with_(model="backorder")
+
     def check(self, spec: "InstanceSpec") -> None:
         if spec.shortage_cost <= 0 and spec.holding_cost <= 0:
             raise SpecError("instance.shortage_cost: must be > 0 when holding_cost is 0")

@@ -24,6 +24,7 @@ if TYPE_CHECKING:
 
 class PerishableModel(InventoryModel):
     name = "perishable"
+    perishes = True
     env_id = "invbench/Perishable-v0"
     env_entry = "invbench.envs.models.perishable.env:PerishableEnv"
     title = "single item with a fixed shelf life, lost sales, FIFO or LIFO issuing"
