@@ -20,8 +20,23 @@ from invbench.envs.models.state_index import StateIndex
 from .expectation import expected_step
 
 
+class IndexedStates:
+    """States held by a state index (`self.index`): what FiniteMDP and the matrix-free
+    SplitMDP both offer the solver and the summaries."""
+
+    index: StateIndex
+
+    @property
+    def states(self) -> np.ndarray:
+        return self.index.states
+
+    @property
+    def n_states(self) -> int:
+        return len(self.index)
+
+
 @dataclass
-class FiniteMDP:
+class FiniteMDP(IndexedStates):
     """Arrays of one finite MDP. Pairs are contiguous per state: pairs of state s are
     pair_start[s] .. pair_start[s+1]-1, in increasing order size."""
 
@@ -38,14 +53,6 @@ class FiniteMDP:
     at_upper: np.ndarray  # [pairs] the order brings the position exactly to the upper bound
     truncation_mass: float  # demand tail probability dropped from the pmf
     start: int
-
-    @property
-    def states(self) -> np.ndarray:
-        return self.index.states
-
-    @property
-    def n_states(self) -> int:
-        return len(self.index)
 
     @property
     def n_pairs(self) -> int:

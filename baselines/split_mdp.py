@@ -24,6 +24,7 @@ from invbench.envs.models.state_index import StateIndex
 
 from . import split_kernels as K
 from .expectation import expected_step
+from .mdp import IndexedStates
 
 #: Pairs of the space checked against the straightforward expectation on every build.
 CHECK_STATES = 400
@@ -46,7 +47,7 @@ class _PairView:
 
 
 @dataclass
-class SplitMDP:
+class SplitMDP(IndexedStates):
     representation: str
     bounds: Bounds
     index: StateIndex
@@ -81,14 +82,6 @@ class SplitMDP:
         self.clip_mass = _PairView(self, self.clipped)
 
     # ------------------------------------------------------------------ what FiniteMDP offers
-    @property
-    def states(self) -> np.ndarray:
-        return self.index.states
-
-    @property
-    def n_states(self) -> int:
-        return len(self.index)
-
     @property
     def n_pairs(self) -> int:
         return int(self.pair_start[-1])
