@@ -16,6 +16,7 @@ import numpy as np
 from scipy import stats
 
 from .errors import BudgetError, SpecError
+from .moments import pmf_moments
 
 #: Upper tail mass that may be dropped when a pmf is truncated (per period).
 TAIL_MASS = 1e-10
@@ -32,17 +33,6 @@ _MAX_SUPPORT: ContextVar[int] = ContextVar("invbench_max_demand_support", defaul
 _DIRECT_CONVOLVE_MAX = 4_000_000
 
 
-def pmf_mean(probs: Any) -> float:
-    """Mean of a pmf on 0, 1, ..., len(probs) - 1."""
-    return float(np.dot(np.arange(len(probs)), probs))
-
-
-def pmf_var(probs: Any) -> float:
-    """Variance of a pmf on 0, 1, ..., len(probs) - 1."""
-    k = np.arange(len(probs))
-    return float(np.dot((k - pmf_mean(probs)) ** 2, probs))
-
-
 @dataclass(frozen=True)
 class DiscretePmf:
     """A pmf on 0..len(probs)-1; `truncation_mass` is the probability dropped beyond the end."""
@@ -56,11 +46,11 @@ class DiscretePmf:
 
     @property
     def mean(self) -> float:
-        return pmf_mean(self.probs)
+        return pmf_moments(self.probs)[0]
 
     @property
     def var(self) -> float:
-        return pmf_var(self.probs)
+        return pmf_moments(self.probs)[1]
 
     def normalized(self) -> np.ndarray:
         """Probabilities rescaled to sum to one (used by solvers; the dropped mass is reported)."""

@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any, Mapping
 
 import numpy as np
 
-from .demand import pmf_mean, pmf_var
+from .moments import pmf_moments
 from .errors import SpecError
 
 if TYPE_CHECKING:
@@ -46,11 +46,11 @@ class LeadTimePmf:
 
     @property
     def mean(self) -> float:
-        return pmf_mean(self.probs)
+        return pmf_moments(self.probs)[0]
 
     @property
     def var(self) -> float:
-        return pmf_var(self.probs)
+        return pmf_moments(self.probs)[1]
 
     def survival(self) -> np.ndarray:
         """S(k) = P(L > k) for k = 0..longest, summed from the tail (no cancellation)."""
