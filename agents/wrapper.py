@@ -96,7 +96,11 @@ class ScaledEnv(gym.Wrapper, gym.utils.RecordConstructorArgs):
         """The wrapped env's action for this env's action in the current state."""
         sc = self.scaling
         if sc.n_slots > 1:  # a slot's sizes are a prefix of its legal sizes: same index
-            return np.asarray(action, dtype=np.int64).reshape(sc.n_slots)
+            a = np.asarray(action).reshape(-1)
+            if a.size != sc.n_slots or not self.action_space.contains(a.astype(np.int64)):
+                raise SpecError(f"action: must be {sc.n_slots} integers in "
+                                f"{', '.join(f'[0, {c - 1}]' for c in sc.slot_counts)}, got {action!r}")
+            return a.astype(np.int64)
         if not self.action_space.contains(np.int64(np.asarray(action).reshape(()))):
             raise SpecError(f"action: must be an integer in [0, {sc.n_actions - 1}], got {action!r}")
         units = sc.orders(self._raw, np.asarray(action, dtype=np.int64).reshape(1))

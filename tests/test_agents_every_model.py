@@ -93,6 +93,10 @@ def test_scaled_env_refuses_other_envs_and_bad_actions():
     env.reset(seed=0)
     with pytest.raises(SpecError, match=r"^action: must be an integer in \[0, "):
         env.step(env.scaling.n_actions)
+    two = _wrapped("serial")
+    two.reset(seed=0)
+    with pytest.raises(SpecError, match=r"^action: must be 2 integers in \[0, "):
+        two.step([two.scaling.slot_counts[0], 0])
 
 
 def test_scaled_env_is_exported_from_the_package():
