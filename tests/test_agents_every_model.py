@@ -1,6 +1,6 @@
 """Every model through the agents: the public `ScaledEnv` wrapper passes gymnasium's and
-stable-baselines3's env checkers, and `train` runs ppo / a2c / dqn with a tiny budget on each
-model, saving a policy that `load_policy` and `evaluate` read back.
+stable-baselines3's env checkers, and `train` runs ppo (through the command line) / a2c / dqn
+with a tiny budget on each model, saving a policy that `invbench evaluate` / `load_policy` read.
 
 Sources: `gymnasium.utils.env_checker.check_env` and `stable_baselines3.common.env_checker.check_env`
 (the libraries' own checkers); stable-baselines3's DQN accepts `Discrete` action spaces only
@@ -108,7 +108,24 @@ def _agents_for(case: str) -> list[str]:
     return ["ppo", "a2c"] + (["dqn"] if len(spec.order_slots) == 1 else [])
 
 
-@pytest.mark.parametrize("case,agent", [(c, a) for c in sorted(CASES) for a in _agents_for(c)])
+@pytest.mark.parametrize("case", sorted(CASES))
+def test_cli_train_then_evaluate_on_every_model(case, tmp_path, capsys):
+    # the command-line round trip with ppo: `invbench train` saves, `invbench evaluate` reads it
+    from invbench.cli import main
+    spec = spec_from_dict(CASES[case])
+    path = tmp_path / "spec.toml"
+    path.write_text(spec.to_toml())
+    settings, steps = TINY["ppo"]
+    sets = [a for k, v in {**QUIET, **settings}.items() for a in ("--set", f"{k}={v}")]
+    out = tmp_path / "run"
+    assert main(["train", str(path), "--steps", str(steps), "--out", str(out), "--no-optimum", *sets]) == 0
+    assert main(["evaluate", str(path), "--policy", str(out), "--simulate", "--replications", "4",
+                 "--periods", "50", "--warmup", "10", "--json"]) == 0
+    assert '"cost"' in capsys.readouterr().out
+    assert load_policy(out, spec).agent == "ppo"
+
+
+@pytest.mark.parametrize("case,agent", [(c, a) for c in sorted(CASES) for a in _agents_for(c) if a != "ppo"])
 def test_train_runs_on_every_model_and_saves_a_readable_policy(case, agent, tmp_path):
     spec = spec_from_dict(CASES[case])
     settings, steps = TINY[agent]
