@@ -141,8 +141,10 @@ def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, ou
     if select_best and monitor.best is not None and monitor.best[1] is not final:
         chosen, policy = "best", monitor.best[1]
     wall, cpu = time.perf_counter() - t0, time.process_time() - c0
+    from .callbacks import one_torch_thread
     from .measurement import measure
-    measured = measure(spec, policy, opt)
+    with one_torch_thread():
+        measured = measure(spec, policy, opt)
     if not monitor.rows:
         monitor.from_measurement(done, measured)
     training = {"agent": agent, "steps": steps, "steps_done": done, "seed": seed, "settings": to_jsonable(s),
