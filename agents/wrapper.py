@@ -2,7 +2,7 @@
 
 `gymnasium.make("invbench/LostSales-v0", ...)` gives raw states (units, up to the 1e9 bound of
 the observation space), minus the cost as reward, and every legal order size as an action;
-most RL libraries learn badly on that. Wrapped, the env shows what our agents see
+RL libraries do not rescale these by themselves. Wrapped, the env shows what our agents see
 (`agents/scaling.py`, the one place the scaling is derived from the instance):
 
 * observations: `state / mean demand - 1`, clipped to +-`obs_clip` (10 by default);
@@ -14,7 +14,7 @@ most RL libraries learn badly on that. Wrapped, the env shows what our agents se
 `info` keeps the wrapped env's entries: `info["cost"]` is the unscaled cost of the period and
 `info["order_units"]` what was ordered, so averages of `info["cost"]` compare with `solve()`.
 `policy(model)` turns a trained model (anything with SB3's `predict`) into a policy on raw
-states, for `invbench.evaluate` / `save`-free comparison with the optimum.
+states, for `invbench.evaluate` and its gap to the optimum.
 """
 from __future__ import annotations
 
@@ -31,11 +31,19 @@ from .scaling import Scaling, scaling_for
 from .settings import CommonSettings, apply_overrides
 
 
+#: the settings that shape the scaling (the rest of `[agent]` is about training)
+SCALING_KEYS = ("obs_scale", "obs_clip", "reward_scale", "reward_offset", "max_order_units", "position_cap",
+                "order_quantile")
+
+
 def scaling_of(spec: InstanceSpec, settings: CommonSettings | Mapping[str, Any] | None = None) -> Scaling:
     """The scaling `invbench train` derives for `spec` (settings: the scaling keys of `[agent]`)."""
     if not isinstance(settings, CommonSettings):
         if settings is not None and not isinstance(settings, Mapping):
-            raise SpecError("settings: must be a mapping of agent settings (e.g. {'obs_clip': 5}) or None")
+            raise SpecError("settings: must be a mapping of scaling settings (e.g. {'obs_clip': 5}) or None")
+        other = sorted(set(settings or {}) - set(SCALING_KEYS))
+        if other:
+            raise SpecError(f"settings.{other[0]}: must be one of the scaling settings {', '.join(SCALING_KEYS)}")
         settings = apply_overrides(CommonSettings(), settings, "ppo")
     return scaling_for(spec, settings)
 

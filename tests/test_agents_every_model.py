@@ -93,6 +93,12 @@ def test_scaled_env_refuses_other_envs_and_bad_actions():
     env.reset(seed=0)
     with pytest.raises(SpecError, match=r"^action: must be an integer in \[0, "):
         env.step(env.scaling.n_actions)
+    with pytest.raises(SpecError, match="^settings.hidden: must be one of the scaling settings"):
+        ScaledEnv(gym.make("invbench/LostSales-v0", spec=CASES["lost_sales"]), settings={"hidden": [8]})
+    with pytest.raises(SpecError, match=r"^agent.obs_clip: must be >= 0"):
+        ScaledEnv(gym.make("invbench/LostSales-v0", spec=CASES["lost_sales"]), settings={"obs_clip": -1})
+    clipped = ScaledEnv(gym.make("invbench/LostSales-v0", spec=CASES["lost_sales"]), settings={"obs_clip": 3})
+    assert clipped.observation_space.high.max() == 3
     two = _wrapped("serial")
     two.reset(seed=0)
     with pytest.raises(SpecError, match=r"^action: must be 2 integers in \[0, "):
