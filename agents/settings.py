@@ -42,7 +42,7 @@ class CommonSettings:
     position_cap: Any = setting(AUTO, "int", "largest inventory position after ordering (auto: from the instance, 0: none)", 0, None, auto=True)
     order_quantile: float = setting(0.9999, "float", "demand quantile giving the automatic order bound", 0.5, 1.0, True)
     episode_length: int = setting(500, "int", "periods per training episode", 1, 10**7)
-    eval_every: Any = setting(AUTO, "int", "training steps between learning-curve points (auto: 20 points)", 1, None, auto=True)
+    eval_every: Any = setting(AUTO, "int", "training steps between learning-curve points (auto: at policy updates, up to 20, within 10 % of the training CPU)", 1, None, auto=True)
     eval_replications: int = setting(32, "int", "replications of each learning-curve evaluation", 2, 10**6)
     eval_periods: int = setting(1000, "int", "measured periods per replication", 1, 10**7)
     eval_warmup: int = setting(100, "int", "periods discarded before measuring", 0, 10**7)
