@@ -44,8 +44,9 @@ DEFINITIONS = (
 
 
 def family_of(model: str, random_lead_time: bool) -> str:
-    """The family a row is reported under: the model, apart for a random lead time."""
-    return f"{model}, random lead time" if random_lead_time else str(model)
+    """The family a row is reported under: the model, or "random lead time" for any model
+    whose lead time is random (the suite's own family, lost sales and backorders alike)."""
+    return "random lead time" if random_lead_time else str(model)
 
 
 @dataclass
