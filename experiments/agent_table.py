@@ -56,7 +56,7 @@ class AgentStats:
     agent: str
     family: str
     expected: int  # cells the suite lists (the finished ones when unknown)
-    done: int  # finished cells with a gap
+    done: int  # finished cells (with a gap once their instance's optimum is in)
     failed: int
     exact: int
     simulated: int
@@ -195,7 +195,7 @@ def _stats(agent: str, fam: str, cells: pd.DataFrame, failed: int, expected: int
     worse_g = worse.reindex(cells.index).fillna(False).astype(bool)
     sim = g[g["method"] != "exact"]
     return AgentStats(
-        agent=agent, family=fam, expected=max(expected, len(g)), done=len(g), failed=failed,
+        agent=agent, family=fam, expected=max(expected, len(cells)), done=len(cells), failed=failed,
         exact=int((g["method"] == "exact").sum()), simulated=len(sim),
         mean_gap=float(gaps.mean()) if len(gaps) else None, max_gap=float(gaps.max()) if len(gaps) else None,
         range_mean=float(ranges.mean()) if len(ranges) else None,

@@ -97,12 +97,13 @@ def _hand_frame() -> pd.DataFrame:
     """Three instances: A (lost sales, optimum 10), B (backorder, optimum 20), C (perishable,
     optimum 5). Agent "ag": A costs 10.1 / 10.3 / 10.6 (gaps .01 .03 .06), B 20.0 / 20.4 / 20.1
     (gaps 0 .02 .005), C seed 0 simulated 5.15 +- 0.1 (gap .03), seed 1 not run, seed 2 failed.
-    Best classical: A 10.5 (gap .05), B 20.2 (gap .01), C 5.1 (gap .02)."""
+    Best classical: A 10.5 (gap .05), B 20.2 (gap .01), C 5.1 (gap .02). D (serial): one agent
+    cell finished, but no optimum and no classical cell yet, so no gap."""
     rows = []
 
     def add(inst, model, policy, kind, seed, cost, gap, method="exact", ci=0.0, status="ok"):
         rows.append(dict(instance=inst, model=model, lead_time_pmf=None, policy=policy, kind=kind, seed=seed,
-                         cost=cost, gap=gap, method=method, ci_halfwidth=ci, gap_ci=ci / {"A": 10, "B": 20, "C": 5}[inst],
+                         cost=cost, gap=gap, method=method, ci_halfwidth=ci, gap_ci=ci / {"A": 10, "B": 20, "C": 5, "D": 1}[inst],
                          status=status))
 
     for inst, model, opt in (("A", "lost_sales", 10.0), ("B", "backorder", 20.0), ("C", "perishable", 5.0)):
@@ -117,16 +118,17 @@ def _hand_frame() -> pd.DataFrame:
         add("B", "backorder", "ag", "agent", seed, cost, gap)
     add("C", "perishable", "ag", "agent", 0, 5.15, 0.03, method="simulated", ci=0.1)
     add("C", "perishable", "ag", "agent", 2, None, None, method="", status="failed")
+    add("D", "serial", "ag", "agent", 0, 7.0, None)
     return pd.DataFrame(rows)
 
 
 def test_table_values_worked_out_by_hand():
     expected = [(i, "ag", s, m) for i, m in (("A", "lost_sales"), ("B", "backorder"), ("C", "perishable"))
-                for s in (0, 1, 2)]
+                for s in (0, 1, 2)] + [("D", "ag", 0, "serial")]
     t = agent_table(_hand_frame(), expected)
     (ag,) = t.overall
-    # 7 finished cells: gaps .01 .03 .06 0 .02 .005 .03, sum .155 -> mean .155 / 7; max .06
-    assert ag.done == 7 and ag.failed == 1 and ag.expected == 9 and ag.missing == 1
+    # 8 finished cells, 7 with a gap: .01 .03 .06 0 .02 .005 .03, sum .155 -> mean .155 / 7; max .06
+    assert ag.done == 8 and ag.failed == 1 and ag.expected == 10 and ag.missing == 1
     assert ag.exact == 6 and ag.simulated == 1
     assert ag.mean_gap == pytest.approx(0.155 / 7) and ag.max_gap == pytest.approx(0.06)
     # seed range: A .06 - .01 = .05, B .02 - 0 = .02 (C has one seed): mean .035, max .05
@@ -143,9 +145,10 @@ def test_table_values_worked_out_by_hand():
     # best classical per instance: .05, .01, .02 -> mean .08 / 3, max .05
     assert t.classical["all"][0] == pytest.approx(0.08 / 3) and t.classical["all"][1:] == (0.05, 3)
     md = t.markdown("Agents")
-    assert "| ag | 7/9 (1 failed) | 6 / 1 | 2.21% | 6.00% | 3.50% / 5.00% | 1.42% | 2 of 3 (2 cells) |" in md
+    assert "| ag | 8/10 (1 failed) | 6 / 1 | 2.21% | 6.00% | 3.50% / 5.00% | 1.42% | 2 of 3 (2 cells) |" in md
     assert "| best classical | 3 instances |  | 2.67% | 5.00% |" in md
-    assert "Partial run: 1 of 9 agent cells not finished yet, 1 failed" in md
+    assert "Partial run: 1 of 10 agent cells not finished yet, 1 failed" in md
+    assert "No optimum (yet) for 1 instance(s), so no gap there: D" in md
     assert "Simulated gaps" in md and "95% CI up to ±2.00%" in md
 
 
