@@ -195,6 +195,8 @@ def test_table_of_a_real_tiny_run_and_the_cli(tmp_path, capsys):
     printed = capsys.readouterr().out
     assert printed == (out / "agents.md").read_text()
     assert "| rollout | 4/4 |" in printed and "Per model family:" in printed and "| perishable | dqn |" in printed
+    assert main(["report", str(out), "--agents", "--format", "md"]) == 2  # --format is for the full report
+    assert "--format:" in capsys.readouterr().err
     # a partial run: one agent cell file gone -> counted as missing, not as a zero
     gone = df[(df["policy"] == "dqn") & (df["seed"] == 1)].iloc[0]["cell_id"]
     Path(out / "cells" / f"{gone}.json").unlink()
