@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import dataclasses
 import math
-import os
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -31,7 +30,7 @@ def setting(default: Any, kind: str, doc: str, lo: float | None = None, hi: floa
 class CommonSettings:
     """Settings every agent shares: network, instance-derived scaling, evaluation, logging."""
 
-    threads: int = setting(min(2, os.cpu_count() or 1), "int", "torch CPU threads", 1, 64)
+    threads: int = setting(1, "int", "torch CPU threads (the networks are small: a second thread mostly spins)", 1, 64)
     hidden: tuple[int, ...] = setting((64, 64), "ints", "hidden layer widths of the policy network", 1, 4096)
     activation: str = setting("tanh", "str", "hidden activation", choices=("tanh", "relu"))
     obs_scale: Any = setting(AUTO, "float", "observation divisor (auto: mean demand per period)", 0.0, None, True, auto=True)
