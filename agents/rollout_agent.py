@@ -17,18 +17,28 @@ One iteration, top to bottom:
      (`fit = "classify"`) cross-entropy on the labels argmin_a Q(s, a), as in the classifier
      form of the method. Measured on the classic grid, the regression is far less hurt by
      the rollout noise of rare, costly stockouts (an argmin of noisy estimates is biased);
-  4. the network is the next current policy; the best one on the CRN learning curve is kept.
-The first current policy is the best order-up-to rule on the inventory position (by CRN search).
-Models with several order slots (one network head per slot): the candidates per state are the
-product of the slots' sizes when it has at most 64 members, else coordinate-wise (one slot
-varied over its sizes, the others at the current policy's order); each head is fitted to its
-slot's values (see `rollout_slots.py`), and the first policy is the best "deficit rule" (every
-slot orders the position's shortfall below a level, by CRN search over the level).
+  4. the network is the next current policy. With `damping` < 1 the regression targets are
+     averaged with the previous round's fitted values, so the greedy policy moves gradually
+     (an averaged-Q form of policy iteration); a size the position cap would clip gets the
+     value of the clipped order (what that action really does), so the greedy choice never
+     lands on an untrained output.
+The first current policy is the cheapest classical policy for the instance, optimised by the
+bench's own search (`rollout_start.py`; e.g. (s, S) with a fixed order cost), within
+`start_share` of the CPU budget; the automatic order bound and position cap are widened to
+cover what it does. Rounds go on until the step or CPU budget ends the run (`iterations` is
+only a cap; the last round is shortened to the time left). The returned policy is the best of
+the start and every round on an evaluation independent of the training rollouts
+(`rollout_judge.py`): never worse than the start on that judge, and the start itself when no
+round beats it. Models with several order slots run through the same loop (one network head
+per slot; candidates and per-head targets in `rollout_slots.py`); without a classical policy
+for the instance, the start is the agent's own rule (order-up-to on the position; for several
+slots the "deficit rule"), as with `start = "rule"`.
 Every period of every path is one call of the model's step function on the whole batch.
 """
 from __future__ import annotations
 
 import dataclasses
+import sys
 import time
 from dataclasses import dataclass
 from typing import Any
@@ -312,7 +322,7 @@ def first_policy(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, seed:
                 print(f"rollout: starts from {choice.name} {choice.params} (average cost {choice.cost:.4f}), "
                       f"found in {choice.cpu_seconds:.1f} CPU s"
                       + (f" = {100 * choice.cpu_seconds / monitor.max_cpu_seconds:.1f} % of the budget"
-                         if monitor.max_cpu_seconds > 0 else ""))
+                         if monitor.max_cpu_seconds > 0 else ""), file=sys.stderr)  # stdout may carry --json
             return choice.policy.act, {**choice.to_dict(), "policy": choice.policy}
     c0 = time.process_time()
     if scaling.n_slots > 1:
