@@ -17,17 +17,29 @@ One iteration, top to bottom:
      (`fit = "classify"`) cross-entropy on the labels argmin_a Q(s, a), as in the classifier
      form of the method. Measured on the classic grid, the regression is far less hurt by
      the rollout noise of rare, costly stockouts (an argmin of noisy estimates is biased);
-  4. the network is the next current policy; the best one on the CRN learning curve is kept.
-The first current policy is the best order-up-to rule on the inventory position (by CRN search).
-Models with several order slots (one network head per slot): the candidates per state are the
-product of the slots' sizes when it has at most 64 members, else coordinate-wise (one slot
-varied over its sizes, the others at the current policy's order); each head is fitted to its
-slot's values (see `rollout_slots.py`), and the first policy is the best "deficit rule" (every
-slot orders the position's shortfall below a level, by CRN search over the level).
+  4. the network is the next current policy. With `damping` < 1 the regression targets are
+     averaged with the previous round's fitted values, so the greedy policy moves gradually
+     (an averaged-Q form of policy iteration); a size the position cap would clip gets the
+     value of the clipped order (what that action really does), so the greedy choice never
+     lands on an untrained output.
+The first current policy is the cheapest classical policy for the instance, optimised by the
+bench's own search (`rollout_start.py`; e.g. (s, S) with a fixed order cost), within
+`start_share` of the CPU budget; the automatic order bound and position cap are widened to
+cover what it does. Rounds go on until the step or CPU budget ends the run (`iterations` is
+only a cap; the last round is shortened to the time left). The returned policy is the best of
+the start and every round on an evaluation independent of the training rollouts
+(`rollout_judge.py`): never worse than the start on that judge, and the start itself when no
+round beats it. Models with several order slots run through the same loop (one network head
+per slot; candidates and per-head targets in `rollout_slots.py`); without a classical policy
+for the instance, the start is the agent's own rule (order-up-to on the position; for several
+slots the "deficit rule"), as with `start = "rule"`.
 Every period of every path is one call of the model's step function on the whole batch.
 """
 from __future__ import annotations
 
+import dataclasses
+import sys
+import time
 from dataclasses import dataclass
 from typing import Any
 
@@ -41,6 +53,7 @@ from invbench.envs.spec import InstanceSpec
 
 from .learned_policy import LearnedPolicy
 from .network import PolicyNet, architecture
+from .rollout_judge import Judge, RolloutRun, round_states, widen_for
 from .scaling import Scaling
 from .settings import AUTO, CommonSettings, setting
 
@@ -51,7 +64,8 @@ class RolloutSettings(CommonSettings):
 
     hidden: tuple[int, ...] = setting((64, 64), "ints", "hidden layer widths of the policy network", 1, 4096)
     activation: str = setting("relu", "str", "hidden activation", choices=("tanh", "relu"))
-    iterations: int = setting(6, "int", "policy-improvement rounds (the step/CPU budget may stop earlier)", 1, 1000)
+    iterations: Any = setting(AUTO, "int", "cap on policy-improvement rounds (auto: none; the step or CPU budget "
+                              "ends the run)", 1, 10**6, auto=True)
     states_per_iteration: int = setting(1500, "int", "states labelled per round", 1, 10**7)
     rollouts: int = setting(32, "int", "common-random-number demand paths per state", 1, 10**5)
     horizon: Any = setting(AUTO, "int", "periods simulated after the first order (auto: 8 (L+1) + 16)", 1, 10**5, auto=True)
@@ -64,6 +78,12 @@ class RolloutSettings(CommonSettings):
     warm_start: bool = setting(True, "bool", "start each round's fit from the previous network")
     fit: str = setting("regress", "str", "classify: cross-entropy on argmin labels; regress: least squares on "
                   "rollout advantages, act by their argmin", choices=("classify", "regress"))
+    damping: float = setting(0.5, "float", "weight of a round's new regression targets; the rest is the previous "
+                             "round's fitted values (1: no damping)", 0.0, 1.0, True)
+    start: str = setting("classical", "str", "first policy: the cheapest optimised classical policy for the instance, "
+                         "or the agent's own rule", choices=("classical", "rule"))
+    start_share: float = setting(0.15, "float", "share of max_cpu_seconds the search for the first policy may use "
+                                 "(later policies are skipped)", 0.0, 1.0)
 
 
 # ---------------------------------------------------------------------------- policies
@@ -203,94 +223,123 @@ def fit_classifier(net: PolicyNet, x: np.ndarray, y: np.ndarray, s: RolloutSetti
 
 # ---------------------------------------------------------------------------- the loop
 def run_rollout_agent(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, steps: int, seed: int,
-                      monitor: Any) -> tuple[LearnedPolicy, int]:
-    """Approximate policy iteration until `iterations`, the step budget or the CPU budget ends it."""
+                      monitor: Any) -> RolloutRun:
+    """Approximate policy iteration until the step or CPU budget (or the `iterations` cap) ends it.
+
+    One loop for one or several order slots (one network head per slot). Returns the judged
+    best policy (see `rollout_judge.py`) beside the last round's.
+    """
+    from .rollout_slots import candidates, head_values, to_index
     rng = np.random.default_rng(seed)
     gen = torch.Generator().manual_seed(seed)
     torch.manual_seed(seed)
-    sizes = scaling.order_sizes_units
-    horizon = 8 * (spec.longest_lead_time + 1) + 16 if s.horizon == AUTO else int(s.horizon)
-    if scaling.n_slots > 1:
-        horizon = 8 * (spec.state_dim + 1) + 16 if s.horizon == AUTO else int(s.horizon)
-        return _run_slots(spec, s, scaling, steps, seed, monitor, rng, gen, horizon)
-    _, act = best_order_up_to(spec, scaling.max_order_units, seed)
-
-    def act_index(states: np.ndarray) -> np.ndarray:
-        return np.asarray(act(states)) // spec.case_pack
+    k = scaling.n_slots
+    lead = spec.longest_lead_time if k == 1 else spec.state_dim
+    horizon = 8 * (lead + 1) + 16 if s.horizon == AUTO else int(s.horizon)
+    cap = 10**6 if s.iterations == AUTO else int(s.iterations)
+    act, start = first_policy(spec, s, scaling, seed, monitor)
+    judge = Judge()
+    if start.get("policy") is not None:
+        judge.offer("classical", start["policy"], monitor.record(0, start["policy"]))
+    states, done = sample_states(spec, act, s, rng)
+    scaling = widen_for(spec, scaling, act, states, s)
     head = "logits" if s.fit == "classify" else "q_values"
-    arch = architecture(spec.state_dim, s.hidden, scaling.n_actions, s.activation, head)
-    net = PolicyNet(arch)
-    policy: LearnedPolicy | None = None
-    done = 0
-    for it in range(s.iterations):
-        states, n = sample_states(spec, act, s, rng)
-        q = rollout_q(spec, act, states, sizes, s.rollouts, horizon, rng)
-        done += n + q.size * s.rollouts * (horizon + 1)
-        # candidates the position cap would clip are not realisable labels
-        k = np.arange(len(sizes))
-        real = scaling.orders(np.repeat(states, len(k), axis=0), np.tile(k, len(states))).reshape(q.shape)
-        mask = real == sizes[None, :]
-        q = np.where(mask, q, np.inf)
-        if not s.warm_start:
-            net = PolicyNet(arch)
-        if s.fit == "classify":
-            acc = fit_classifier(net, scaling.features(states), q.argmin(axis=1).astype(np.int64), s, gen)
+    arch = architecture(spec.state_dim, s.hidden, scaling.n_outputs, s.activation, head,
+                        scaling.slot_counts if k > 1 else None)
+    net, trained = PolicyNet(arch), False
+    policy: Any = start.get("policy")
+    final, it, last_cpu = policy, 0, 0.0
+    while it < cap and (it == 0 or (done < steps and not monitor.out_of_time())):  # at least one round
+        c0 = monitor.cpu_seconds()
+        if it > 0:
+            left = s_max - c0 if (s_max := monitor.max_cpu_seconds) > 0 else None
+            n_states = round_states(s.states_per_iteration, last_cpu, left, s.chains)
+            if n_states == 0:
+                break
+            states, n = sample_states(spec, act, dataclasses.replace(s, states_per_iteration=n_states), rng)
+            done += n
+        current = act_unique(act, states).reshape(len(states), k)
+        first = scaling.order_sizes_units if k == 1 else candidates(scaling, current)
+        q = rollout_q(spec, act, states, first, s.rollouts, horizon, rng)
+        done += q.size * s.rollouts * (horizon + 1)
+        if k == 1:  # a size the position cap clips is the clipped order: it gets that order's value
+            j = np.arange(q.shape[1])
+            real = scaling.orders(np.repeat(states, len(j), axis=0), np.tile(j, len(states))).reshape(q.shape)
+            values = [np.take_along_axis(q, real // scaling.case_pack, axis=1)]
         else:
-            here = np.take_along_axis(q, act_index(states)[:, None], axis=1)
-            adv = np.where(mask, (q - here) / scaling.reward_scale, 0.0)
-            acc = fit_regressor(net, scaling.features(states), adv, mask, s, gen)
+            values = head_values(scaling, first, q)
+        if not s.warm_start:
+            net, trained = PolicyNet(arch), False
+        x = scaling.features(states)
+        if s.fit == "classify":
+            labels = np.column_stack([v.argmin(axis=1) for v in values]).astype(np.int64)
+            acc = _fit_heads_classifier(net, x, labels, scaling.slot_counts, s, gen)
+        else:
+            adv = advantages(values, to_index(scaling, current), scaling.reward_scale)
+            mask = np.isfinite(adv)
+            target = -np.where(mask, adv, 0.0)
+            if trained and s.damping < 1:  # average with the previous round's fitted values
+                with torch.no_grad():
+                    prev = net(torch.from_numpy(x)).numpy().astype(np.float64)
+                target = s.damping * target + (1 - s.damping) * prev
+            acc = fit_regressor(net, x, -target, mask, s, gen)
+        trained, it = True, it + 1
         policy = LearnedPolicy(spec, scaling, _copy(net, arch), agent="rollout",
-                               meta={"iteration": it + 1, "train_accuracy": acc})
-        act = policy.act
+                               meta={"iteration": it, "train_accuracy": acc})
+        final, act = policy, policy.act
         monitor.advance(done, lambda p=policy: p, force=True)
-        if done >= steps or monitor.out_of_time():
-            break
-    assert policy is not None
-    return policy, done
+        judge.offer(f"round {it}", policy, monitor.rows[-1])
+        last_cpu = monitor.cpu_seconds() - c0
+    best = judge.best.policy if judge.best is not None else final
+    label = judge.best.label if judge.best is not None else "final"
+    chosen = "classical" if label == "classical" else ("final" if best is final else "best")
+    return RolloutRun(final, done, best, chosen, it, {k2: v for k2, v in start.items() if k2 != "policy"},
+                      judge.history)
+
+
+def advantages(values: list[np.ndarray], current: np.ndarray, unit: float) -> np.ndarray:
+    """Per head, each size's rollout value less the current order's (inf where not realisable).
+
+    One reference per state (the first head's current order) keeps the heads on one scale; a
+    current order that is itself not realisable falls back to the state's cheapest candidate.
+    """
+    v0 = values[0]
+    here = v0[np.arange(len(v0)), np.clip(current[:, 0], 0, v0.shape[1] - 1)]
+    here = np.where(np.isfinite(here), here, v0.min(axis=1))[:, None]
+    return np.concatenate([(v - here) / unit for v in values], axis=1)
+
+
+def first_policy(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, seed: int,
+                 monitor: Any) -> tuple[Any, dict[str, Any]]:
+    """The starting policy's `act` and what it is: the cheapest classical policy for the instance
+    (`rollout_start.py`), else (or with `start = "rule"`) the agent's own simple rule."""
+    if s.start == "classical":
+        from .rollout_start import best_classical
+        budget = s.start_share * monitor.max_cpu_seconds
+        choice = best_classical(spec, budget)
+        if choice is not None:
+            if s.progress:
+                print(f"rollout: starts from {choice.name} {choice.params} (average cost {choice.cost:.4f}), "
+                      f"found in {choice.cpu_seconds:.1f} CPU s"
+                      + (f" = {100 * choice.cpu_seconds / monitor.max_cpu_seconds:.1f} % of the budget"
+                         if monitor.max_cpu_seconds > 0 else ""), file=sys.stderr)  # stdout may carry --json
+            return choice.policy.act, {**choice.to_dict(), "policy": choice.policy}
+    c0 = time.process_time()
+    if scaling.n_slots > 1:
+        from .rollout_slots import best_deficit_rule
+        level, act = best_deficit_rule(spec, scaling, seed)
+        name = "deficit_rule"
+    else:
+        level, act = best_order_up_to(spec, scaling.max_order_units, seed)
+        name = "order_up_to"
+    return act, {"name": name, "params": {"level": int(level)}, "cpu_seconds": time.process_time() - c0,
+                 "policy": None}
 
 
 def _copy(net: PolicyNet, arch: dict[str, Any]) -> PolicyNet:
     out = PolicyNet(arch, init=False)
     out.load_state_dict(net.state_dict())
     return out.eval()
-
-
-def _run_slots(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, steps: int, seed: int, monitor: Any,
-               rng: np.random.Generator, gen: torch.Generator, horizon: int) -> tuple[LearnedPolicy, int]:
-    """The loop above for a model with several order slots (one head per slot)."""
-    from .rollout_slots import best_deficit_rule, candidates, head_values, to_index
-    _, act = best_deficit_rule(spec, scaling, seed)
-    head = "logits" if s.fit == "classify" else "q_values"
-    arch = architecture(spec.state_dim, s.hidden, scaling.n_outputs, s.activation, head, scaling.slot_counts)
-    net = PolicyNet(arch)
-    policy: LearnedPolicy | None = None
-    done = 0
-    for it in range(s.iterations):
-        states, n = sample_states(spec, act, s, rng)
-        current = act_unique(act, states).reshape(len(states), scaling.n_slots)
-        first = candidates(scaling, current)
-        q = rollout_q(spec, act, states, first, s.rollouts, horizon, rng)
-        done += n + q.size * s.rollouts * (horizon + 1)
-        values = head_values(scaling, first, q)
-        cur = to_index(scaling, current)
-        if not s.warm_start:
-            net = PolicyNet(arch)
-        x = scaling.features(states)
-        if s.fit == "classify":
-            labels = np.column_stack([v.argmin(axis=1) for v in values]).astype(np.int64)
-            acc = _fit_heads_classifier(net, x, labels, scaling.slot_counts, s, gen)
-        else:
-            here = values[0][np.arange(len(states)), cur[:, 0]][:, None]
-            adv = np.concatenate([(v - here) / scaling.reward_scale for v in values], axis=1)
-            acc = fit_regressor(net, x, adv, np.ones_like(adv, dtype=bool), s, gen)
-        policy = LearnedPolicy(spec, scaling, _copy(net, arch), agent="rollout",
-                               meta={"iteration": it + 1, "train_accuracy": acc})
-        act = policy.act
-        monitor.advance(done, lambda p=policy: p, force=True)
-        if done >= steps or monitor.out_of_time():
-            break
-    assert policy is not None
-    return policy, done
 
 
 def _fit_heads_classifier(net: PolicyNet, x: np.ndarray, y: np.ndarray, heads: list[int], s: RolloutSettings,

@@ -39,8 +39,10 @@ class TrainResult:
     curve: list[dict[str, Any]]
     out: str | None
     policy: Any = field(repr=False, default=None)
-    chosen: str = "final"  # "final" or "best" (best learning-curve point)
+    chosen: str = "final"  # "final", "best" (best learning-curve point) or "classical" (rollout: its start)
     eval_cpu_seconds: float = 0.0  # CPU of the learning curve's points (part of cpu_seconds)
+    start: dict[str, Any] | None = None  # rollout: the classical policy it started from, and the search's time
+    rounds: int | None = None  # rollout: policy-improvement rounds done
 
     @property
     def cost(self) -> float:
@@ -128,17 +130,23 @@ def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, ou
     from .scaling import scaling_for
     scaling = scaling_for(spec, s)
     monitor = TrainingMonitor(spec, s, steps, out_dir, optimum=opt, max_cpu_seconds=max_cpu_seconds)
+    run = None
     try:
         if agent == "rollout":
             from .rollout_agent import run_rollout_agent
-            final, done = run_rollout_agent(spec, s, scaling, steps, seed, monitor)
+            run = run_rollout_agent(spec, s, scaling, steps, seed, monitor)
+            final, done = run.final, run.steps_done
         else:
             final, done = _run_sb3(agent, spec, s, scaling, steps, seed, monitor)
         monitor.finish(done, final)
     finally:
         monitor.close()
     chosen, policy = "final", final
-    if select_best and monitor.best is not None and monitor.best[1] is not final:
+    if run is not None:  # the rollout agent judges its candidates, the start included, itself
+        if select_best or final is None:
+            chosen, policy = run.chosen, run.best
+        scaling = getattr(policy, "scaling", scaling)  # widened to cover its start
+    elif select_best and monitor.best is not None and monitor.best[1] is not final:
         chosen, policy = "best", monitor.best[1]
     wall, cpu = time.perf_counter() - t0, time.process_time() - c0
     from .callbacks import one_torch_thread
@@ -150,13 +158,21 @@ def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, ou
     training = {"agent": agent, "steps": steps, "steps_done": done, "seed": seed, "settings": to_jsonable(s),
                 "wall_seconds": wall, "cpu_seconds": cpu, "eval_cpu_seconds": monitor.eval_cpu,
                 "torch_threads": int(s.threads), "chosen": chosen}
-    policy.meta.update(training=training, measured=measured)
+    if run is not None:
+        training.update(start=run.start, rounds=run.rounds, judged=run.judged)
+    if isinstance(getattr(policy, "meta", None), dict):
+        policy.meta.update(training=training, measured=measured)
     result = TrainResult(agent, spec.to_dict(), seed, steps, done, wall, cpu, to_jsonable(s), scaling.to_dict(),
                          measured, list(monitor.rows), str(out_dir) if out_dir else None, policy, chosen,
-                         monitor.eval_cpu)
+                         eval_cpu_seconds=monitor.eval_cpu, start=run.start if run is not None else None,
+                         rounds=run.rounds if run is not None else None)
     if out_dir is not None:
         from .export import write_json_atomic
-        policy.save(out_dir)
+        if hasattr(policy, "save"):
+            policy.save(out_dir)
+        else:  # a classical policy (the rollout agent's start): the same saved-policy format
+            from invbench.baselines.artifact import save_policy
+            save_policy(policy, out_dir, measured=measured, other_files=True)
         write_json_atomic(out_dir / TRAIN_FILE, result.to_dict())
     return result
 

@@ -41,12 +41,13 @@ def _is_solve_result(obj: Any) -> bool:
 
 
 def save_policy(obj: Any, directory: str | Path, *, states: str = "all",
-                measured: Mapping[str, Any] | None = None) -> Path:
+                measured: Mapping[str, Any] | None = None, other_files: bool = False) -> Path:
     """Save a policy to `directory` (policy.json, plus a safetensors file for tables and networks).
 
     obj: what `solve()` returned (the optimal table; `states="reachable"` keeps only the states
     reachable from the empty start under it), the table policy itself (all states), a classical
     policy (`make_policy`), or a learned policy. `measured`: an evaluation to keep with it.
+    `other_files`: the folder may hold other files (a training run's curve and checkpoints).
     """
     from .table_policy import TablePolicy
     if states not in STATE_SCOPES:
@@ -54,7 +55,7 @@ def save_policy(obj: Any, directory: str | Path, *, states: str = "all",
     if not isinstance(directory, (str, Path)):
         raise SpecError(f"directory: must be a path, got {type(directory).__name__}")
     from .artifact_io import check_save_dir
-    check_save_dir(directory)
+    check_save_dir(directory, other_files=other_files)
     extra: dict[str, Any] = {"measured": dict(measured or {})}
     if _is_solve_result(obj) and not isinstance(obj.policy, TablePolicy):
         # a decomposition's optimum is a classical policy (e.g. echelon base-stock levels): save

@@ -116,6 +116,7 @@ def _agent_cell(spec: InstanceSpec, payload: dict[str, Any]) -> dict[str, Any]:
     if done is not None:
         out["params"]["steps_done"] = int(done)
     out["extras"] = {"policy_map": policy_map(spec, policy), "train_seconds": train_seconds,
+                     "chosen": getattr(trained, "chosen", None), "policy": policy.describe(),
                      "learning_curve": learning_curve(trained, out_dir), "artefacts": str(out_dir)}
     return out
 

@@ -35,7 +35,10 @@ def _states(n: int = 500) -> np.ndarray:
 def test_smoke_training_exports_and_reloads(agent, tmp_path):
     settings, steps = TINY[agent]
     out = tmp_path / agent
-    res = train(L2P9, agent, steps=steps, seed=0, out=out, settings={**QUIET, **settings, **FAST_CURVE})
+    # the rollout agent would return its classical start when that judges best (see
+    # test_rollout_agent_behaviour.py); here the network it trained last is exported
+    res = train(L2P9, agent, steps=steps, seed=0, out=out, settings={**QUIET, **settings, **FAST_CURVE},
+                select_best=agent != "rollout")
     for name in ("policy.json", "weights.safetensors", "learning_curve.csv", TRAIN_FILE):
         assert (out / name).is_file(), name
     assert list((out / "checkpoints").iterdir()) or agent == "rollout"
@@ -130,7 +133,7 @@ def test_exact_cost_of_learned_policy_matches_simulation():
     from invbench.baselines.policy_eval import evaluate_exact
     from invbench.experiments.simulate import simulate
     settings, steps = TINY["rollout"]
-    res = train(L2P9, "rollout", steps=steps, seed=0, settings={**QUIET, **settings}, optimum=None)
+    res = train(L2P9, "rollout", steps=steps, seed=0, settings={**QUIET, **settings}, optimum=None, select_best=False)
     exact = evaluate_exact(L2P9, res.policy).cost
     sim = simulate(L2P9, res.policy, replications=200, periods=2000, warmup=200, seed=3)
     assert abs(sim.cost - exact) <= sim.ci_halfwidth * 3.3 / 1.96
@@ -141,7 +144,7 @@ def test_state_by_state_comparison_adds_up_to_the_gap():
     # expectation of Q*(s, a) - Q*(s, a*) over the learned policy's chain equals g - g*.
     from invbench.agents import compare_with_optimal
     settings, steps = TINY["rollout"]
-    res = train(L2P9, "rollout", steps=steps, seed=0, settings={**QUIET, **settings}, optimum=None)
+    res = train(L2P9, "rollout", steps=steps, seed=0, settings={**QUIET, **settings}, optimum=None, select_best=False)
     c = compare_with_optimal(L2P9, res.policy)
     assert 0 < c.share_states_differ <= 1 and c.states_differ > 0
     gap_abs = c.cost - c.optimum
@@ -154,7 +157,7 @@ def test_cli_train_round_trip(tmp_path, capsys):
     from invbench.cli import main
     spec = tmp_path / "spec.toml"
     spec.write_text(L1P4.to_toml() + "\n[agent]\nname = \"rollout\"\n[agent.rollout]\nstates_per_iteration = 100\n"
-                    "rollouts = 2\nepochs = 2\n")
+                    "rollouts = 2\nepochs = 2\nstart = \"rule\"\n")  # no classical start: a network is saved
     out = tmp_path / "run"
     rc = main(["train", str(spec), "--steps", "1", "--out", str(out), "--set", "threads=1", "--set", "progress=false",
                "--no-optimum"])
@@ -165,7 +168,7 @@ def test_cli_train_round_trip(tmp_path, capsys):
 
 def test_rollout_classifier_variant_exports_logits(tmp_path):
     settings, steps = TINY["rollout"]
-    res = train(L2P9, "rollout", steps=steps, seed=0, out=tmp_path / "c", optimum=None,
+    res = train(L2P9, "rollout", steps=steps, seed=0, out=tmp_path / "c", optimum=None, select_best=False,
                 settings={**QUIET, **settings, **FAST_CURVE, "fit": "classify"})
     assert res.policy.net.arch["head"] == "logits"
     back = load_policy(tmp_path / "c")

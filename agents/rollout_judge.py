@@ -1,0 +1,96 @@
+"""Which policy the rollout agent returns, judged apart from its training rollouts; and its pacing.
+
+Candidates are the starting classical policy and the policy of every round. Each is judged on
+its learning-curve point (`TrainingMonitor.record`), which is independent of the rollouts that
+trained it: the exact long-run cost when the policy's reachable chain is small enough
+(`baselines/policy_eval.py`), and always a simulation on the curve's own common random numbers
+(`eval_seed`, never the training seed). Two candidates are compared exactly when both have an
+exact cost, else on that simulation. The best so far is kept, so the result is never worse
+than the starting policy on this judge; when the start stays best, it is what training returns.
+"""
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from invbench.envs.spec import InstanceSpec
+
+from .scaling import Scaling
+
+
+@dataclass
+class Candidate:
+    label: str  # "classical" or "round N"
+    policy: Any = field(repr=False)
+    exact: float | None
+    simulated: float
+
+    def beats(self, other: "Candidate") -> bool:
+        if self.exact is not None and other.exact is not None:
+            return self.exact < other.exact - 1e-12 * max(1.0, abs(other.exact))
+        return self.simulated < other.simulated
+
+
+class Judge:
+    """Keeps the best candidate seen; `offer` takes the learning-curve row of the candidate."""
+
+    def __init__(self) -> None:
+        self.best: Candidate | None = None
+        self.history: list[dict[str, Any]] = []
+
+    def offer(self, label: str, policy: Any, row: dict[str, Any]) -> bool:
+        c = Candidate(label, policy, row.get("exact_cost"), float(row["cost"]))
+        won = self.best is None or c.beats(self.best)
+        if won:
+            self.best = c
+        self.history.append({"label": label, "exact_cost": c.exact, "cost": c.simulated, "best": won})
+        return won
+
+
+@dataclass
+class RolloutRun:
+    """What `run_rollout_agent` hands back to `train`."""
+
+    final: Any  # the last round's policy (or the start, when no round ran)
+    steps_done: int
+    best: Any  # the judged best policy
+    chosen: str  # "classical", "final" or "best" (an earlier round)
+    rounds: int
+    start: dict[str, Any]
+    judged: list[dict[str, Any]]
+
+
+def widen_for(spec: InstanceSpec, scaling: Scaling, act: Any, states: np.ndarray, settings: Any) -> Scaling:
+    """A one-slot scaling whose order sizes and position cap (the automatic ones) cover what the
+    starting policy does on its own states: e.g. (s, S) orders batches larger than a demand
+    quantile, which the network could not otherwise express."""
+    from .settings import AUTO
+    if scaling.n_slots > 1:
+        return scaling
+    orders = np.asarray(act(states), dtype=np.int64).reshape(-1)
+    q = scaling.case_pack
+    units, cap = scaling.max_order_units, scaling.position_cap
+    margin = int(np.ceil(2 * np.sqrt(spec.demand.var)))  # room to learn a little above the start's levels
+    if settings.max_order_units == AUTO and len(orders) and orders.max() > units:
+        units = int(min(-(-(int(orders.max()) + margin) // q) * q, spec.order_cap_units))
+    if settings.position_cap == AUTO and cap > 0 and len(orders) and (states.sum(axis=1) + orders).max() > cap:
+        cap = int((states.sum(axis=1) + orders).max()) + margin
+    if (units, cap) == (scaling.max_order_units, scaling.position_cap):
+        return scaling
+    return dataclasses.replace(scaling, max_order_units=units, position_cap=cap, slot_sizes=())
+
+
+def round_states(planned: int, last_round_cpu: float, remaining_cpu: float | None, floor: int) -> int:
+    """States to label this round so that it ends inside the CPU budget (0: stop now).
+
+    A round's time grows with its states; the last one is shortened to the time left rather
+    than overrunning the budget, and skipped when less than a quarter of a round is left.
+    """
+    if remaining_cpu is None or last_round_cpu <= 0 or remaining_cpu >= last_round_cpu:
+        return planned
+    if remaining_cpu < 0.25 * last_round_cpu:
+        return 0
+    return max(int(planned * remaining_cpu / last_round_cpu), min(floor, planned))
