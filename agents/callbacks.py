@@ -43,6 +43,13 @@ CURVE_COLUMNS = ("step", "wall_seconds", "cpu_seconds", "cost", "ci_halfwidth", 
 EVAL_CPU_SHARE = 0.10
 #: with eval_every = auto, at most about this many points per run
 AUTO_POINTS = 20
+#: With eval_every = auto a point is taken only when the simulated periods of all points so far
+#: stay within this many per training step. A count, not a CPU reading, so that the points taken
+#: (and so the best point exported) are the same on a busy and an idle machine: the same seed
+#: gives the same policy. Measured (PPO defaults, [64, 64] network, one thread, the 2-core
+#: development machine): about 3.8 ms of training CPU per step and 0.2 to 0.4 s per default
+#: point of 32 x 1,100 periods, so 40 periods per step would spend about 10 %; 30 keeps margin.
+EVAL_PERIODS_PER_STEP = 30
 
 
 def resolve_every(value: Any, steps: int, points: int) -> int:
@@ -62,7 +69,6 @@ class TrainingMonitor:
         self.auto_eval = settings.eval_every == AUTO
         self.eval_every = resolve_every(settings.eval_every, steps, AUTO_POINTS)
         self.eval_cpu = 0.0  # CPU seconds spent on curve points
-        self._point_cost: float | None = None  # CPU seconds of the last point
         self.checkpoint_every = resolve_every(settings.checkpoint_every, steps, 5)
         self.max_cpu_seconds = max_cpu_seconds
         self.rows: list[dict[str, Any]] = []
@@ -84,22 +90,16 @@ class TrainingMonitor:
         """CPU seconds of the run so far, without those spent on the learning curve."""
         return self.cpu_seconds() - self.eval_cpu
 
-    def affordable(self, policy: Any, reserve: int = 0) -> bool:
-        """Whether one more point (plus `reserve` more) keeps the curve within its CPU share."""
-        cost = self._point_cost if self._point_cost is not None else self._first_point_cost(policy)
-        return self.eval_cpu + cost * (1 + reserve) <= EVAL_CPU_SHARE * self.train_cpu_seconds()
-
-    def _first_point_cost(self, policy: Any) -> float:
-        """A point's CPU before any was taken: one forward pass over the replications, times the
-        periods simulated (what dominates for a network policy)."""
+    def point_periods(self) -> int:
+        """Simulated periods of one learning-curve point."""
         s = self.settings
-        states = np.tile(self.spec.model_def.start_state(self.spec), (max(int(s.eval_replications), 2), 1))
-        c0 = time.process_time()
-        with training_rng_untouched(), one_torch_thread():
-            policy.act(states)
-        per = time.process_time() - c0
-        self.eval_cpu += per
-        return per * (s.eval_warmup + s.eval_periods)
+        return max(int(s.eval_replications), 2) * (int(s.eval_warmup) + int(s.eval_periods))
+
+    def affordable(self, step: int, reserve: int = 0) -> bool:
+        """Whether one more point (plus `reserve` more) keeps the curve within its share at `step`
+        (EVAL_PERIODS_PER_STEP; deterministic, see there). The CPU it really took is recorded."""
+        taken = sum(1 for r in self.rows if r.get("eval_cpu_seconds"))
+        return (taken + 1 + reserve) * self.point_periods() <= EVAL_PERIODS_PER_STEP * step
 
     def out_of_time(self) -> bool:
         return self.max_cpu_seconds > 0 and self.cpu_seconds() >= self.max_cpu_seconds
@@ -121,8 +121,7 @@ class TrainingMonitor:
         if force or (due and not self.auto_eval):
             take = True
         elif due:
-            policy = policy_fn()
-            take = self.affordable(policy, reserve=1)  # keep room for the final point
+            take = self.affordable(step, reserve=1)  # keep room for the final point
         else:
             take = False
         if take:
@@ -148,7 +147,7 @@ class TrainingMonitor:
         """
         if self.rows and self.rows[-1]["step"] == step:
             return
-        if self.auto_eval and not self.rows and not self.affordable(policy):
+        if self.auto_eval and not self.rows and not self.affordable(step):
             return
         self.record(step, policy)
 
@@ -167,9 +166,9 @@ class TrainingMonitor:
         row = {"step": step, "wall_seconds": round(self.wall_seconds(), 3), "cpu_seconds": round(self.cpu_seconds(), 3),
                "cost": est.cost, "ci_halfwidth": float(est.ci_halfwidth), "gap_pct": gap, "exact_cost": exact,
                "exact_gap_pct": exact_gap}
-        self._point_cost = time.process_time() - c0
-        self.eval_cpu += self._point_cost
-        row["eval_cpu_seconds"] = round(self._point_cost, 4)
+        cost = time.process_time() - c0
+        self.eval_cpu += cost
+        row["eval_cpu_seconds"] = max(round(cost, 4), 1e-4)  # > 0: marks a point (not the final measurement)
         self.rows.append(row)
         # the best point is chosen on the exact cost when every point has one (no selection noise)
         key = exact if exact is not None and self._all_exact else est.cost
