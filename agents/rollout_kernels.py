@@ -32,10 +32,25 @@ from invbench.experiments.sim_kernels import guide_table, inverse_cdf
 
 from . import forward
 
-#: entries of the decision memo (a power of two); it stops taking new states when half full
-MEMO = 1 << 18
+#: rows of the decision memo at the start (a power of two; it doubles when half full) and at most
+MEMO, MEMO_MAX = 1 << 12, 1 << 20
 #: environment switch forcing the numpy path (for comparisons)
 NUMPY_ENV = "INVBENCH_ROLLOUT_NUMPY"
+
+
+_HASH: list[Any] = []
+
+
+def memo_slot(x: Any, first: int, n: int, mask: int) -> int:  # pragma: no cover - compiled
+    """Table slot of the state x[first .. first + n - 1]: FNV-1a over its entries, then the
+    murmur3 finaliser (the entries are small integers: without it nearby states cluster)."""
+    h = np.uint64(1469598103934665603)
+    for i in range(n):
+        h = (h ^ np.uint64(x[first + i] & 0xFFFFFFFF)) * np.uint64(1099511628211)
+    h = (h ^ (h >> np.uint64(33))) * np.uint64(0xFF51AFD7ED558CCD)
+    h = (h ^ (h >> np.uint64(33))) * np.uint64(0xC4CEB9FE1A85EC53)
+    h = h ^ (h >> np.uint64(33))
+    return np.int64(h & np.uint64(0xFFFFFFFF)) & mask
 
 
 def _build(period: Callable[..., None], key: int) -> Any:
@@ -44,7 +59,7 @@ def _build(period: Callable[..., None], key: int) -> Any:
 
     def run(state0, srow, first, has_first, U, ucol, keep0, every, kept, total, cdf, guide, ip, fp, mode,
             W, level, reorder, cap, pack, ref, coef, seq, params, sizes, heads, scale, activation, buf,
-            units, ulen, poscap, case, mkeys, mvals, mused, work, bs, ba, bn, bc, bf, hidx):  # pragma: no cover
+            units, ulen, poscap, case, memo0, memo_max, work, bs, ba, bn, bc, bf, hidx):  # pragma: no cover
         if key == 0:  # never true: `key` only keys numba's disk cache (envs/models/compiled.py)
             return
         R = srow.shape[0]
@@ -52,7 +67,8 @@ def _build(period: Callable[..., None], key: int) -> Any:
         k = ba.shape[0]
         T = U.shape[0]
         nc = bc.shape[0]
-        mask = mkeys.shape[0] - 1
+        mt = memo0
+        held = 0
         s, a, nx, costs, flows = unmanaged(bs), unmanaged(ba), unmanaged(bn), unmanaged(bc), unmanaged(bf)
         ipu, fpu, w_ = unmanaged(ip), unmanaged(fp), unmanaged(work)
         for r in range(R):
@@ -80,15 +96,14 @@ def _build(period: Callable[..., None], key: int) -> Any:
                         o = min(max(raw, 0), cap[j])
                         a[j] = o if pack[j] == 1 else (o // pack[j]) * pack[j]
                 else:  # the network, memoised per state (open addressing, linear probing)
-                    h = np.uint64(1469598103934665603)
-                    for i in range(n):
-                        h = (h ^ np.uint64(s[i] & 0xFFFFFFFF)) * np.uint64(1099511628211)
-                    slot = np.int64(h >> np.uint64(20)) & mask
+                    # one table row per state: [used, state (n), orders (k)], one cache line
+                    mask = mt.shape[0] - 1
+                    slot = memo_slot(s, 0, n, mask)
                     found = False
-                    while mused[slot]:
+                    while mt[slot, 0] == 1:
                         same = True
                         for i in range(n):
-                            if mkeys[slot, i] != s[i]:
+                            if mt[slot, 1 + i] != s[i]:
                                 same = False
                                 break
                         if same:
@@ -97,7 +112,7 @@ def _build(period: Callable[..., None], key: int) -> Any:
                         slot = (slot + 1) & mask
                     if found:
                         for j in range(k):
-                            a[j] = mvals[slot, j]
+                            a[j] = mt[slot, 1 + n + j]
                     else:
                         row_index(s, params, sizes, heads, scale, activation, buf, hidx)
                         for j in range(k):
@@ -108,13 +123,24 @@ def _build(period: Callable[..., None], key: int) -> Any:
                                 p += s[i]
                             room = max(poscap - p, 0)
                             a[0] = min(a[0], (room // case) * case)
-                        if mused[mask + 1] * 2 < mask:  # the count of states held sits after the flags
-                            mused[slot] = 1
-                            mused[mask + 1] += 1
+                        if held * 2 < mask:  # at most half full, so probes stay short
+                            mt[slot, 0] = 1
+                            held += 1
                             for i in range(n):
-                                mkeys[slot, i] = s[i]
+                                mt[slot, 1 + i] = s[i]
                             for j in range(k):
-                                mvals[slot, j] = a[j]
+                                mt[slot, 1 + n + j] = a[j]
+                            if held * 2 >= mask and mt.shape[0] < memo_max:  # grow: twice the rows
+                                old = mt
+                                mt = np.zeros((2 * old.shape[0], old.shape[1]), dtype=np.int64)
+                                m2 = mt.shape[0] - 1
+                                for e in range(old.shape[0]):
+                                    if old[e, 0] == 1:
+                                        sl = memo_slot(old[e], 1, n, m2)
+                                        while mt[sl, 0] == 1:
+                                            sl = (sl + 1) & m2
+                                        for i in range(old.shape[1]):
+                                            mt[sl, i] = old[e, i]
                 d = inverse_cdf(cdf, guide, U[t, ucol[r]])
                 period(s, a, d, ipu, fpu, nx, costs, flows, w_)
                 c = 0.0
@@ -192,6 +218,10 @@ def _ready(spec: Any, act: Any) -> tuple[Any, Any, KernelPolicy] | None:
         return None
     rules, p = found
     register(inverse_cdf)
+    if not _HASH:  # a call, not inlined: inlined, numba's pedantic SSA check warns about its loop
+        from numba.extending import register_jitable
+        register_jitable(memo_slot)
+        _HASH.append(memo_slot)
     forward.register_row_index()
     return driver("rollout", rules, _build), p, pol
 
@@ -212,7 +242,7 @@ def _run(run: Any, p: Any, pol: KernelPolicy, spec: Any, state0: np.ndarray, sro
         total, cdf, guide_table(cdf), p.ints, p.floats, pol.mode, lin.weights, lin.level, lin.reorder, lin.cap,
         lin.pack, lin.ref, lin.coef, lin.sequence, net.params, net.sizes, net.heads, net.scale, net.activation,
         net.scratch(), units, np.asarray([len(x) for x in units], dtype=np.int64), pol.poscap, pol.case,
-        np.zeros((memo, n), dtype=np.int64), np.zeros((memo, k), dtype=np.int64), np.zeros(memo + 1, dtype=np.int64),
+        np.zeros((memo, 1 + n + k), dtype=np.int64), MEMO_MAX,
         np.empty(max(p.work, 1), dtype=np.int64), np.empty(n, dtype=np.int64), np.zeros(k, dtype=np.int64),
         np.empty(n, dtype=np.int64), np.empty(len(rules.costs)), np.empty(len(rules.flows), dtype=np.int64),
         np.zeros(k, dtype=np.int64))

@@ -68,8 +68,12 @@ def _both(fn):
     return on, off
 
 
+@pytest.mark.parametrize("memo", [None, (4, 16)])
 @pytest.mark.parametrize("case", list(CASES))
-def test_compiled_rollouts_equal_the_numpy_path(case):
+def test_compiled_rollouts_equal_the_numpy_path(case, memo, monkeypatch):
+    if memo is not None:  # a tiny decision memo: it grows, fills up, and the forward runs unmemoised
+        monkeypatch.setattr(rollout_kernels, "MEMO", memo[0])
+        monkeypatch.setattr(rollout_kernels, "MEMO_MAX", memo[1])
     spec = CASES[case]
     pol = _net_policy(spec)
     s = RolloutSettings(states_per_iteration=90, chains=7, state_warmup=13, state_spacing=3)
