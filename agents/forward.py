@@ -5,7 +5,7 @@ rollout agent's compiled kernel (`rollout_kernels.py`) both call `row_index` bel
 decision cannot differ between the two paths: the same compiled function runs on the same
 float64 weights (the float32 weights converted exactly). Per row: the features are those of
 `Scaling.features` (float32: state / obs_scale - obs_shift, clipped), each layer is
-W x + b in float64 summed in input order, the activation sits between the layers, and each
+W x + b in float64 summed in input order (then the bias), the activation sits between the layers, and each
 head's action is the first index of its largest score (as numpy's and torch's argmax).
 """
 from __future__ import annotations
@@ -24,7 +24,7 @@ RELU, TANH = 0, 1
 class NetArrays:
     """A network and its feature scaling as the arrays `row_index` reads."""
 
-    params: np.ndarray  # float64: layer i's weight [out, in] row-major, then its bias, layer after layer
+    params: np.ndarray  # float64: layer i's weight transposed [in, out] row-major, then its bias, per layer
     sizes: np.ndarray  # int64 [layers + 1]: inputs, hidden widths, outputs
     heads: np.ndarray  # int64: width of each slot's head
     scale: np.ndarray  # float32 [3]: obs_scale, obs_shift, obs_clip (0 = no clipping)
@@ -39,7 +39,7 @@ def net_arrays(net: PolicyNet, scaling: Any) -> NetArrays:
     """The arrays of `net` with `scaling`'s features (weights copied: the net may train on)."""
     parts = []
     for layer in net.linears:
-        parts.append(layer.weight.detach().double().numpy().reshape(-1))
+        parts.append(layer.weight.detach().double().numpy().T.reshape(-1))  # [in, out]: see row_index
         parts.append(layer.bias.detach().double().numpy().reshape(-1))
     arch = net.arch
     sizes = np.asarray([arch["inputs"], *arch["hidden"], arch["outputs"]], dtype=np.int64)
@@ -57,30 +57,33 @@ def row_index(s: Any, params: Any, sizes: Any, heads: Any, scale: Any, activatio
     n = sizes[0]
     sc, sh, cl = scale[0], scale[1], scale[2]
     for i in range(n):
-        v = np.float32(s[i]) / sc - sh  # float32 as Scaling.features
+        f = np.float32(s[i]) / sc - sh  # float32 as Scaling.features (own name: stays float32)
         if cl > 0:
-            v = min(max(v, -cl), cl)
-        x[i] = np.float64(v)
+            f = min(max(f, -cl), cl)
+        x[i] = np.float64(f)
     off = 0
     L = len(sizes) - 1
     for layer in range(L):
         m, o = sizes[layer], sizes[layer + 1]
+        for j in range(o):
+            y[j] = 0.0
+        # input after input, each adding to every output: per output the same sum in the same
+        # order as a dot product, and the loop over outputs runs in SIMD lanes
+        for i in range(m):
+            xi = x[i]
+            row = off + i * o
+            for j in range(o):
+                y[j] = y[j] + params[row + j] * xi
         boff = off + m * o
         for j in range(o):
-            acc = 0.0
-            row = off + j * m
-            for i in range(m):
-                acc = acc + params[row + i] * x[i]
-            acc = acc + params[boff + j]
+            v = y[j] + params[boff + j]
             if layer < L - 1:
                 if activation == 0:
-                    acc = max(acc, 0.0)
+                    v = max(v, 0.0)
                 else:
-                    acc = np.tanh(acc)
-            y[j] = acc
+                    v = np.tanh(v)
+            x[j] = v
         off = boff + o
-        for j in range(o):
-            x[j] = y[j]
     start = 0
     for h in range(len(heads)):
         best = start

@@ -25,7 +25,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from invbench.envs.models.compiled import covered, driver, jit, register
+from invbench.envs.models.compiled import covered, driver, jit, register, source_key
 from invbench.envs.random_inputs import PeriodInputs
 from invbench.experiments.policy_kernels import NEVER, LinearOrders, linear_orders
 from invbench.experiments.sim_kernels import guide_table, inverse_cdf
@@ -56,11 +56,14 @@ def memo_slot(x: Any, first: int, n: int, mask: int) -> int:  # pragma: no cover
 def _build(period: Callable[..., None], key: int) -> Any:
     from invbench.envs.models.nb_views import unmanaged
     row_index = forward.row_index
+    # numba keys its disk cache by this file, not by forward.py: the forward's source hash is a
+    # closure value, so an edited forward gets a fresh compile (as `key` does for the rules)
+    fkey = source_key(forward.row_index)
 
     def run(state0, srow, first, has_first, U, ucol, keep0, every, kept, total, cdf, guide, ip, fp, mode,
             W, level, reorder, cap, pack, ref, coef, seq, params, sizes, heads, scale, activation, buf,
             units, ulen, poscap, case, memo0, memo_max, work, bs, ba, bn, bc, bf, hidx):  # pragma: no cover
-        if key == 0:  # never true: `key` only keys numba's disk cache (envs/models/compiled.py)
+        if key == 0 or fkey == 0:  # never true: they only key numba's disk cache (envs/models/compiled.py)
             return
         R = srow.shape[0]
         n = state0.shape[1]
