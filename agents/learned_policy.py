@@ -30,6 +30,7 @@ class LearnedPolicy(PolicyBase):
         self.net = net.eval()
         self.agent = agent
         self.meta: dict[str, Any] = dict(meta or {})
+        self._arrays: tuple[Any, NetArrays] | None = None
 
     def action_index(self, obs: np.ndarray) -> np.ndarray:
         """Index of the chosen order size for each row of `obs` ([B, k] with k slots)."""
@@ -44,8 +45,12 @@ class LearnedPolicy(PolicyBase):
         return idx[:, 0] if idx.shape[1] == 1 else idx
 
     def arrays(self) -> NetArrays:
-        """The network and scaling as the forward's arrays (read afresh: the net may be trained on)."""
-        return net_arrays(self.net, self.scaling)
+        """The network and scaling as the forward's arrays, read again only when a weight changed
+        (torch counts in-place updates of each tensor in `_version`: a net may be trained on)."""
+        key = (id(self.net), tuple(p._version for p in self.net.parameters()), self.scaling)
+        if self._arrays is None or self._arrays[0] != key:
+            self._arrays = (key, net_arrays(self.net, self.scaling))
+        return self._arrays[1]
 
     def act(self, obs: np.ndarray) -> np.ndarray:
         obs = np.asarray(obs)

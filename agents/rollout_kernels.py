@@ -169,16 +169,20 @@ class KernelPolicy:
 
 
 class OrderUpTo:
-    """Order up to `level` on the inventory position, at most `max_units`, in case packs."""
+    """Order up to `level` on the inventory position, at most `max_units`, in case packs (a
+    policy with `act`, and a callable as the agent's start rule always was)."""
 
     def __init__(self, level: int, spec: Any, max_units: int) -> None:
         self.level, self.spec, self.max_units, self.q = int(level), spec, int(max_units), int(spec.case_pack)
 
-    def __call__(self, states: np.ndarray) -> np.ndarray:
+    def act(self, states: np.ndarray) -> np.ndarray:
         want = np.clip(self.level - states.sum(axis=1), 0, self.max_units)
         return (want // self.q) * self.q
 
-    def linear(self, spec: Any) -> LinearOrders | None:
+    __call__ = act
+
+    def linear_orders(self, spec: Any) -> LinearOrders | None:
+        """The rule as `experiments/policy_kernels.py` runs it (the simulator and the rollout kernel)."""
         if spec != self.spec or len(spec.order_slots) != 1:
             return None
         one = lambda v: np.asarray([v], dtype=np.int64)  # noqa: E731
@@ -208,7 +212,7 @@ def kernel_policy(act: Any, spec: Any) -> KernelPolicy | None:
             return None
         return KernelPolicy(1, _dummy_linear(k, n), owner.arrays(), units,
                             int(sc.position_cap) if sc.n_slots == 1 else 0, int(sc.case_pack))
-    lin = owner.linear(spec) if isinstance(owner, OrderUpTo) else linear_orders(owner, spec)
+    lin = linear_orders(owner, spec)
     return None if lin is None else KernelPolicy(0, lin)
 
 

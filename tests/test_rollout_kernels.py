@@ -104,6 +104,17 @@ def test_linear_rules_run_in_the_kernel_with_the_same_numbers(case):
         np.testing.assert_allclose(q_on, q_off, rtol=0, atol=1e-9)
 
 
+def test_the_start_rule_is_simulated_compiled_with_the_same_cost():
+    """The order-up-to start rule states its linear form, so `simulate` runs it compiled; the
+    reference is the simulator's numpy loop (compiled paths off)."""
+    from invbench.experiments.simulate import simulate
+    spec = CASES["lost_sales"]
+    rule = order_up_to(9, spec, 6)
+    assert rollout_kernels.linear_orders(rule, spec) is not None
+    on, off = _both(lambda: simulate(spec, rule, replications=8, periods=300, warmup=20, seed=3).cost)
+    assert on == off
+
+
 def test_random_lead_time_and_plain_callables_fall_back():
     spec = spec_from_dict({**MODELS["lost_sales"].variants["random_lead_time"], "model": "lost_sales"})
     pol = _net_policy(spec)
