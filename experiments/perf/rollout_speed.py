@@ -93,7 +93,8 @@ def quality(L: int, p: float, cpu: float) -> None:
         print(f"L={L} p={p:<3g} {way:<9} cpu {res.cpu_seconds:6.1f} s  curve points {len(res.curve):>3} "
               f"periods {res.steps_done:>13,d}  per CPU-s {res.steps_done / res.cpu_seconds:>12,.0f}  "
               f"cost {res.cost:8.4f}  optimum {opt.cost:8.4f}  gap {100 * res.gap:6.2f} %", flush=True)
-    r = (row["compiled"].steps_done / row["compiled"].cpu_seconds) / (row["numpy"].steps_done / row["numpy"].cpu_seconds)
+    rate = {w: res.steps_done / res.cpu_seconds for w, res in row.items()}
+    r = rate["compiled"] / rate["numpy"]
     print(f"L={L} p={p:<3g} periods per CPU-second compiled / numpy: {r:.1f} x; gap numpy "
           f"{100 * row['numpy'].gap:.2f} % -> compiled {100 * row['compiled'].gap:.2f} %", flush=True)
 
