@@ -62,7 +62,7 @@ def _build(period: Callable[..., None], key: int) -> Any:
 
     def run(state0, srow, first, has_first, U, ucol, keep0, every, kept, total, cdf, guide, ip, fp, mode,
             W, level, reorder, cap, pack, ref, coef, seq, params, sizes, heads, scale, activation, buf,
-            units, ulen, poscap, case, memo0, memo_max, work, bs, ba, bn, bc, bf, hidx):  # pragma: no cover
+            units, poscap, case, memo0, memo_max, work, bs, ba, bn, bc, bf, hidx):  # pragma: no cover
         if key == 0 or fkey == 0:  # never true: they only key numba's disk cache (envs/models/compiled.py)
             return
         R = srow.shape[0]
@@ -248,7 +248,7 @@ def _run(run: Any, p: Any, pol: KernelPolicy, spec: Any, state0: np.ndarray, sro
     run(np.ascontiguousarray(state0, dtype=np.int64), srow, first, len(first) > 0, U, ucol, keep0, every, kept,
         total, cdf, guide_table(cdf), p.ints, p.floats, pol.mode, lin.weights, lin.level, lin.reorder, lin.cap,
         lin.pack, lin.ref, lin.coef, lin.sequence, net.params, net.sizes, net.heads, net.scale, net.activation,
-        net.scratch(), units, np.asarray([len(x) for x in units], dtype=np.int64), pol.poscap, pol.case,
+        net.scratch(), units, pol.poscap, pol.case,
         np.zeros((memo, 1 + n + k), dtype=np.int64), MEMO_MAX,
         np.empty(max(p.work, 1), dtype=np.int64), np.empty(n, dtype=np.int64), np.zeros(k, dtype=np.int64),
         np.empty(n, dtype=np.int64), np.empty(len(rules.costs)), np.empty(len(rules.flows), dtype=np.int64),
