@@ -7,10 +7,10 @@ from __future__ import annotations
 
 from typing import Any
 
-__all__ = ["train", "load_policy", "TrainResult", "LearnedPolicy", "compare_with_optimal", "AGENTS"]
+__all__ = ["train", "load_policy", "TrainResult", "LearnedPolicy", "compare_with_optimal", "AGENTS", "ScaledEnv"]
 
 _WHERE = {"train": "training", "TrainResult": "training", "AGENTS": "training", "load_policy": "export",
-          "LearnedPolicy": "learned_policy", "compare_with_optimal": "compare"}
+          "LearnedPolicy": "learned_policy", "compare_with_optimal": "compare", "ScaledEnv": "wrapper"}
 
 
 def __getattr__(name: str) -> Any:

@@ -1,10 +1,17 @@
 """What happens while an agent trains: progress bar, learning curve, checkpoints, time budget.
 
 `TrainingMonitor` is agent-agnostic (our rollout agent calls it directly); `SB3Callback` adapts
-it to stable-baselines3. Every K steps the current greedy policy is measured with common random
-numbers (the same demands each time, so the curve's wiggles are the policy's, not the noise's)
-and, when its reachable chain is small enough, exactly; a row goes to `learning_curve.csv`, with
-the gap to the optimum when that is known.
+it to stable-baselines3. A learning-curve point measures the current greedy policy with common
+random numbers (the same demands each time, so the curve's wiggles are the policy's, not the
+noise's) and, when its reachable chain is small enough, exactly; a row goes to
+`learning_curve.csv`, with the gap to the optimum when that is known and the CPU seconds the
+point took.
+
+When points are taken: with `eval_every = auto` only when the policy has changed (after an SB3
+update, after a rollout-agent round), at most about 20 times a run, and only while the curve's
+CPU stays within `EVAL_CPU_SHARE` of the training's (a point's cost is estimated from the last
+one, or before the first from one batch of the policy's forward pass); a fixed `eval_every`
+takes a point every K environment steps, as set.
 """
 from __future__ import annotations
 
@@ -31,7 +38,11 @@ from .settings import AUTO, CommonSettings
 
 CURVE_FILE = "learning_curve.csv"
 CURVE_COLUMNS = ("step", "wall_seconds", "cpu_seconds", "cost", "ci_halfwidth", "gap_pct", "exact_cost",
-                 "exact_gap_pct")
+                 "exact_gap_pct", "eval_cpu_seconds")
+#: with eval_every = auto the curve's points may use at most this share of the training's CPU time
+EVAL_CPU_SHARE = 0.10
+#: with eval_every = auto, at most about this many points per run
+AUTO_POINTS = 20
 
 
 def resolve_every(value: Any, steps: int, points: int) -> int:
@@ -48,7 +59,10 @@ class TrainingMonitor:
                  optimum: float | None = None, max_cpu_seconds: float = 0.0) -> None:
         self.spec, self.settings, self.steps, self.out = spec, settings, steps, out
         self.optimum = optimum
-        self.eval_every = resolve_every(settings.eval_every, steps, 20)
+        self.auto_eval = settings.eval_every == AUTO
+        self.eval_every = resolve_every(settings.eval_every, steps, AUTO_POINTS)
+        self.eval_cpu = 0.0  # CPU seconds spent on curve points
+        self._point_cost: float | None = None  # CPU seconds of the last point
         self.checkpoint_every = resolve_every(settings.checkpoint_every, steps, 5)
         self.max_cpu_seconds = max_cpu_seconds
         self.rows: list[dict[str, Any]] = []
@@ -66,18 +80,54 @@ class TrainingMonitor:
     def wall_seconds(self) -> float:
         return time.perf_counter() - self._t0
 
+    def train_cpu_seconds(self) -> float:
+        """CPU seconds of the run so far, without those spent on the learning curve."""
+        return self.cpu_seconds() - self.eval_cpu
+
+    def affordable(self, policy: Any, reserve: int = 0) -> bool:
+        """Whether one more point (plus `reserve` more) keeps the curve within its CPU share."""
+        cost = self._point_cost if self._point_cost is not None else self._first_point_cost(policy)
+        return self.eval_cpu + cost * (1 + reserve) <= EVAL_CPU_SHARE * self.train_cpu_seconds()
+
+    def _first_point_cost(self, policy: Any) -> float:
+        """A point's CPU before any was taken: one forward pass over the replications, times the
+        periods simulated (what dominates for a network policy)."""
+        s = self.settings
+        states = np.tile(self.spec.model_def.start_state(self.spec), (max(int(s.eval_replications), 2), 1))
+        c0 = time.process_time()
+        with training_rng_untouched(), one_torch_thread():
+            policy.act(states)
+        per = time.process_time() - c0
+        self.eval_cpu += per
+        return per * (s.eval_warmup + s.eval_periods)
+
     def out_of_time(self) -> bool:
         return self.max_cpu_seconds > 0 and self.cpu_seconds() >= self.max_cpu_seconds
 
     # ------------------------------------------------------------------ events
-    def advance(self, step: int, policy_fn: Callable[[], Any], force: bool = False) -> None:
-        """Called with the number of steps done; evaluates/checkpoints when their turn has come."""
+    def advance(self, step: int, policy_fn: Callable[[], Any], force: bool = False, update: bool = False) -> None:
+        """Called with the number of steps done; evaluates/checkpoints when their turn has come.
+
+        force: take a point now (the caller knows its policy just changed: a rollout round).
+        update: the policy has just changed (an SB3 update); with `eval_every = auto` points
+        are taken only then, when due and affordable. A fixed `eval_every` ignores `update`.
+        """
         self.bar.n = min(step, self.steps)
         self.bar.refresh()
+        if self.auto_eval and not (force or update):
+            return  # an unchanged policy: nothing new to measure or save
         policy = None
-        if force or step >= self._next_eval:
+        due = step >= self._next_eval
+        if force or (due and not self.auto_eval):
+            take = True
+        elif due:
+            policy = policy_fn()
+            take = self.affordable(policy, reserve=1)  # keep room for the final point
+        else:
+            take = False
+        if take:
             with training_rng_untouched():
-                policy = policy_fn()
+                policy = policy if policy is not None else policy_fn()
                 self.record(step, policy)
             while self._next_eval <= step:
                 self._next_eval += self.eval_every
@@ -88,8 +138,27 @@ class TrainingMonitor:
             while self._next_ckpt <= step:
                 self._next_ckpt += self.checkpoint_every
 
+    def finish(self, step: int, policy: Any) -> None:
+        """The final policy's point, when the curve does not end with it already.
+
+        With `eval_every = auto` a run whose curve is still empty takes it only when affordable
+        (a run too short for that gets its final measurement as its one row, `from_measurement`);
+        when there are earlier points it is always taken, since the best point is chosen among
+        them and the final policy.
+        """
+        if self.rows and self.rows[-1]["step"] == step:
+            return
+        if self.auto_eval and not self.rows and not self.affordable(policy):
+            return
+        self.record(step, policy)
+
     def record(self, step: int, policy: Any) -> dict[str, Any]:
+        with one_torch_thread():
+            return self._record(step, policy)
+
+    def _record(self, step: int, policy: Any) -> dict[str, Any]:
         s = self.settings
+        c0 = time.process_time()
         est = simulate(self.spec, policy.act, replications=s.eval_replications, periods=s.eval_periods,
                        warmup=s.eval_warmup, seed=s.eval_seed)
         gap = 100.0 * (est.cost - self.optimum) / self.optimum if self.optimum else None
@@ -98,6 +167,9 @@ class TrainingMonitor:
         row = {"step": step, "wall_seconds": round(self.wall_seconds(), 3), "cpu_seconds": round(self.cpu_seconds(), 3),
                "cost": est.cost, "ci_halfwidth": float(est.ci_halfwidth), "gap_pct": gap, "exact_cost": exact,
                "exact_gap_pct": exact_gap}
+        self._point_cost = time.process_time() - c0
+        self.eval_cpu += self._point_cost
+        row["eval_cpu_seconds"] = round(self._point_cost, 4)
         self.rows.append(row)
         # the best point is chosen on the exact cost when every point has one (no selection noise)
         key = exact if exact is not None and self._all_exact else est.cost
@@ -139,10 +211,39 @@ class TrainingMonitor:
         self.out.mkdir(parents=True, exist_ok=True)
         _atomic_write(self.out / CURVE_FILE, buf.getvalue().encode())
 
+    def from_measurement(self, step: int, measured: dict[str, Any]) -> None:
+        """The curve's one row of a run too short for an affordable point: its final measurement
+        (done anyway, so it costs the curve nothing; exact when the chain is small)."""
+        gap = measured.get("gap")
+        exact = measured["cost"] if measured.get("method") == "exact" else None
+        row = {"step": step, "wall_seconds": round(self.wall_seconds(), 3), "cpu_seconds": round(self.cpu_seconds(), 3),
+               "cost": measured["cost"], "ci_halfwidth": measured.get("ci_halfwidth") or 0.0,
+               "gap_pct": None if gap is None else 100.0 * gap, "exact_cost": exact,
+               "exact_gap_pct": None if (gap is None or exact is None) else 100.0 * gap, "eval_cpu_seconds": 0.0}
+        self.rows.append(row)
+        if self.out is not None:
+            self._write_curve()
+
     def close(self) -> None:
         self.bar.close()
         if self._tb is not None:
             self._tb.close()
+
+
+@contextmanager
+def one_torch_thread() -> Iterator[None]:
+    """Run a policy's many small forward passes (simulation, exact evaluation) on one torch thread.
+
+    A batch of a few dozen states through a [64, 64] network is far too small to share: with two
+    threads, torch's workers spin between the passes, and on a busy machine a learning-curve
+    point took 17 CPU-seconds instead of 0.2 (measured on the 2-core development machine).
+    """
+    before = torch.get_num_threads()
+    torch.set_num_threads(1)
+    try:
+        yield
+    finally:
+        torch.set_num_threads(before)
 
 
 @contextmanager
@@ -178,6 +279,13 @@ def sb3_callback(monitor: TrainingMonitor, policy_fn: Callable[[], Any]) -> Any:
     from stable_baselines3.common.callbacks import BaseCallback
 
     class _Callback(BaseCallback):
+        def _on_rollout_start(self) -> None:
+            # a rollout starts after the previous one's update (`train()`), so the policy has
+            # changed here, except at the first one and before an off-policy agent's learning starts
+            n = self.num_timesteps
+            if n > 0 and n > int(getattr(self.model, "learning_starts", 0)):
+                monitor.advance(n, policy_fn, update=True)
+
         def _on_step(self) -> bool:
             monitor.advance(self.num_timesteps, policy_fn)
             return not monitor.out_of_time()

@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import dataclasses
 import math
-import os
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -31,7 +30,7 @@ def setting(default: Any, kind: str, doc: str, lo: float | None = None, hi: floa
 class CommonSettings:
     """Settings every agent shares: network, instance-derived scaling, evaluation, logging."""
 
-    threads: int = setting(min(2, os.cpu_count() or 1), "int", "torch CPU threads", 1, 64)
+    threads: int = setting(1, "int", "torch CPU threads (the networks are small: a second thread mostly spins)", 1, 64)
     hidden: tuple[int, ...] = setting((64, 64), "ints", "hidden layer widths of the policy network", 1, 4096)
     activation: str = setting("tanh", "str", "hidden activation", choices=("tanh", "relu"))
     obs_scale: Any = setting(AUTO, "float", "observation divisor (auto: mean demand per period)", 0.0, None, True, auto=True)
@@ -42,7 +41,7 @@ class CommonSettings:
     position_cap: Any = setting(AUTO, "int", "largest inventory position after ordering (auto: from the instance, 0: none)", 0, None, auto=True)
     order_quantile: float = setting(0.9999, "float", "demand quantile giving the automatic order bound", 0.5, 1.0, True)
     episode_length: int = setting(500, "int", "periods per training episode", 1, 10**7)
-    eval_every: Any = setting(AUTO, "int", "training steps between learning-curve points (auto: 20 points)", 1, None, auto=True)
+    eval_every: Any = setting(AUTO, "int", "training steps between learning-curve points (auto: at policy updates, up to 20, within 10 % of the training CPU)", 1, None, auto=True)
     eval_replications: int = setting(32, "int", "replications of each learning-curve evaluation", 2, 10**6)
     eval_periods: int = setting(1000, "int", "measured periods per replication", 1, 10**7)
     eval_warmup: int = setting(100, "int", "periods discarded before measuring", 0, 10**7)

@@ -40,6 +40,7 @@ class TrainResult:
     out: str | None
     policy: Any = field(repr=False, default=None)
     chosen: str = "final"  # "final" or "best" (best learning-curve point)
+    eval_cpu_seconds: float = 0.0  # CPU of the learning curve's points (part of cpu_seconds)
 
     @property
     def cost(self) -> float:
@@ -133,21 +134,26 @@ def train(spec: Any, agent: str = "ppo", steps: int = 200_000, seed: int = 0, ou
             final, done = run_rollout_agent(spec, s, scaling, steps, seed, monitor)
         else:
             final, done = _run_sb3(agent, spec, s, scaling, steps, seed, monitor)
-        if not monitor.rows or monitor.rows[-1]["step"] != done:
-            monitor.record(done, final)
+        monitor.finish(done, final)
     finally:
         monitor.close()
     chosen, policy = "final", final
     if select_best and monitor.best is not None and monitor.best[1] is not final:
         chosen, policy = "best", monitor.best[1]
     wall, cpu = time.perf_counter() - t0, time.process_time() - c0
+    from .callbacks import one_torch_thread
     from .measurement import measure
-    measured = measure(spec, policy, opt)
+    with one_torch_thread():
+        measured = measure(spec, policy, opt)
+    if not monitor.rows:
+        monitor.from_measurement(done, measured)
     training = {"agent": agent, "steps": steps, "steps_done": done, "seed": seed, "settings": to_jsonable(s),
-                "wall_seconds": wall, "cpu_seconds": cpu, "torch_threads": int(s.threads), "chosen": chosen}
+                "wall_seconds": wall, "cpu_seconds": cpu, "eval_cpu_seconds": monitor.eval_cpu,
+                "torch_threads": int(s.threads), "chosen": chosen}
     policy.meta.update(training=training, measured=measured)
     result = TrainResult(agent, spec.to_dict(), seed, steps, done, wall, cpu, to_jsonable(s), scaling.to_dict(),
-                         measured, list(monitor.rows), str(out_dir) if out_dir else None, policy, chosen)
+                         measured, list(monitor.rows), str(out_dir) if out_dir else None, policy, chosen,
+                         monitor.eval_cpu)
     if out_dir is not None:
         from .export import write_json_atomic
         policy.save(out_dir)

@@ -16,7 +16,7 @@ import numpy as np
 from scipy import stats
 
 from .errors import BudgetError, SpecError
-from .moments import pmf_moments
+from .moments import PmfMoments
 
 #: Upper tail mass that may be dropped when a pmf is truncated (per period).
 TAIL_MASS = 1e-10
@@ -34,7 +34,7 @@ _DIRECT_CONVOLVE_MAX = 4_000_000
 
 
 @dataclass(frozen=True)
-class DiscretePmf:
+class DiscretePmf(PmfMoments):
     """A pmf on 0..len(probs)-1; `truncation_mass` is the probability dropped beyond the end."""
 
     probs: np.ndarray
@@ -43,14 +43,6 @@ class DiscretePmf:
     @property
     def support_max(self) -> int:
         return len(self.probs) - 1
-
-    @property
-    def mean(self) -> float:
-        return pmf_moments(self.probs)[0]
-
-    @property
-    def var(self) -> float:
-        return pmf_moments(self.probs)[1]
 
     def normalized(self) -> np.ndarray:
         """Probabilities rescaled to sum to one (used by solvers; the dropped mass is reported)."""

@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any, Mapping
 
 import numpy as np
 
-from .moments import pmf_moments
+from .moments import PmfMoments
 from .errors import SpecError
 
 if TYPE_CHECKING:
@@ -34,7 +34,7 @@ KEYS = ("pmf", "crossing")
 
 
 @dataclass(frozen=True)
-class LeadTimePmf:
+class LeadTimePmf(PmfMoments):
     """A lead-time pmf on 0..len(probs)-1 (the last entry > 0) and how orders arrive."""
 
     probs: tuple[float, ...]
@@ -43,14 +43,6 @@ class LeadTimePmf:
     @property
     def longest(self) -> int:
         return len(self.probs) - 1
-
-    @property
-    def mean(self) -> float:
-        return pmf_moments(self.probs)[0]
-
-    @property
-    def var(self) -> float:
-        return pmf_moments(self.probs)[1]
 
     def survival(self) -> np.ndarray:
         """S(k) = P(L > k) for k = 0..longest, summed from the tail (no cancellation)."""

@@ -11,3 +11,17 @@ def pmf_moments(probs: Any) -> tuple[float, float]:
     k = np.arange(len(probs))
     m = float(np.dot(k, probs))
     return m, float(np.dot((k - m) ** 2, probs))
+
+
+class PmfMoments:
+    """`mean` and `var` of a pmf held in `self.probs` (demand tables and lead-time tables)."""
+
+    probs: Any
+
+    @property
+    def mean(self) -> float:
+        return pmf_moments(self.probs)[0]
+
+    @property
+    def var(self) -> float:
+        return pmf_moments(self.probs)[1]

@@ -70,6 +70,10 @@ def register(subparsers: Any) -> None:
     r.add_argument("dir", help="results folder written by `invbench bench`")
     r.add_argument("--format", default=None, metavar="FMT,...",
                    help="also write the figures as svg / pdf and the summary table as tex / md (or all)")
+    r.add_argument("--agents", action="store_true",
+                   help="instead of the report, print the agents' table as Markdown (gap to the optimum: mean, max, "
+                        "spread across seeds; worse than the best classical policy; per model family; missing cells "
+                        "of a partial run) and save it as DIR/agents.md")
     r.set_defaults(func=_report)
 
     c = subparsers.add_parser(
@@ -160,6 +164,10 @@ def _report(args: argparse.Namespace) -> int:
     root = Path(args.dir)
     if not (root / "suite.toml").is_file():
         raise SpecError(f"dir: {root} has no suite.toml (give a results folder written by `invbench bench`)")
+    if args.agents:
+        if formats:
+            raise SpecError("--format: chooses report files; leave it out with --agents")
+        return _agents_table(root)
     check_output_dir(root, "dir", RESULT_DIRS, REPORT_FILES + extra_files(formats))
     rep = write_report(root, formats)
     for p in rep.files():
@@ -167,6 +175,21 @@ def _report(args: argparse.Namespace) -> int:
     for original, moved, reason in rep.unread:
         sys.stderr.write(f"invbench: warning: could not read {original} ({reason}); kept as {moved}, "
                          f"not in the report; rerun `invbench bench` to compute it again\n")
+    return 0
+
+
+def _agents_table(root: Path) -> int:
+    from invbench.envs.paths import check_output_dir
+    from .agent_table import run_agent_table
+    from .store import ResultStore, atomic_write
+
+    check_output_dir(root, "dir", RESULT_DIRS, REPORT_FILES + ("agents.md",))
+    table = run_agent_table(root)
+    if not table.overall:
+        raise SpecError(f"dir: the suite of {root} has no agent entries (nothing for --agents to show)")
+    md = table.markdown(f"Agents against the optimum: {ResultStore(root).suite().name}")
+    atomic_write(root / "agents.md", md)
+    print(md, end="")
     return 0
 
 

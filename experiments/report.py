@@ -121,6 +121,9 @@ def write_report(root: str | Path, formats: tuple[str, ...] = ()) -> ReportResul
     blocks.append(("h2", "Summary by policy"))
     summary = _summary_table(df)
     blocks.append(("table", summary))
+    if any(p.kind == "agent" for p in suite.policies):
+        from .agent_table import run_agent_table  # the agents' table, as `invbench report DIR --agents`
+        blocks.extend(run_agent_table(root).blocks("Agents against the optimum"))
     if suite.sweep == "lead_time":
         blocks.append(("h2", "Gap vs lead time"))
         figure(plots.gap_vs_lead_time(df, root / "gap_vs_lead_time.png", suite.name, formats),

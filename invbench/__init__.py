@@ -21,13 +21,13 @@ from invbench.api import (Evaluation, SolveResult, evaluate, export_table, load_
 __version__ = "0.1.0"
 
 __all__ = ["Demand", "Evaluation", "InstanceSpec", "SolveResult", "SpecError", "evaluate", "export_table",
-           "load_policy", "load_spec", "make_env", "make_policy", "policies", "save_policy", "solve", "train",
+           "load_policy", "load_spec", "make_env", "make_policy", "policies", "save_policy", "solve", "train", "ScaledEnv",
            "__version__"]
 
 
 def __getattr__(name: str) -> Any:
     # Training needs torch; load it only when asked, so `import invbench` stays light.
-    if name == "train":
+    if name in ("train", "ScaledEnv"):
         import invbench.agents as agents
         return getattr(agents, name)
     raise AttributeError(f"module 'invbench' has no attribute {name!r}")

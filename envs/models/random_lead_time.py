@@ -41,6 +41,16 @@ def simulation_only(spec: "InstanceSpec") -> str:
     return NO_EXACT if spec.lead_time_kind == "crossing" else ""
 
 
+class RandomLeadTimeHooks:
+    """The model hooks of a single-order model that takes `lead_time = { pmf = [...] }`."""
+
+    def random_inputs(self, spec: "InstanceSpec") -> tuple[InputLaw, ...]:
+        return arrival_inputs(spec)
+
+    def simulation_only(self, spec: "InstanceSpec") -> str:
+        return simulation_only(spec)
+
+
 def state_labels(first: str, longest: int) -> list[str]:
     """Labels of the random-lead-time layout (`first` names the stock coordinate)."""
     s = (lambda a: "s" if a > 1 else "")

@@ -22,7 +22,7 @@ if TYPE_CHECKING:
     from invbench.envs.spec import InstanceSpec
 
 
-class BackorderModel(InventoryModel):
+class BackorderModel(rlt.RandomLeadTimeHooks, InventoryModel):
     name = "backorder"
     env_id = "invbench/Backorder-v0"
     env_entry = "invbench.envs.models.backorder.env:BackorderEnv"
@@ -55,12 +55,6 @@ class BackorderModel(InventoryModel):
     def state_labels(self, spec: "InstanceSpec") -> list[str]:
         return layout_labels(spec, "net inventory (on-hand - backorders) after the receipt"
                              if spec.lead_time_law is None else "net inventory (on-hand - backorders)")
-
-    def random_inputs(self, spec: "InstanceSpec"):
-        return rlt.arrival_inputs(spec)
-
-    def simulation_only(self, spec: "InstanceSpec") -> str:
-        return rlt.simulation_only(spec)
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray, **inputs: np.ndarray) -> tuple[np.ndarray, Outcome]:

@@ -21,7 +21,7 @@ if TYPE_CHECKING:
     from invbench.envs.spec import InstanceSpec
 
 
-class LostSalesModel(InventoryModel):
+class LostSalesModel(rlt.RandomLeadTimeHooks, InventoryModel):
     name = "lost_sales"
     env_id = "invbench/LostSales-v0"
     env_entry = "invbench.envs.models.lost_sales.env:LostSalesEnv"
@@ -56,12 +56,6 @@ class LostSalesModel(InventoryModel):
     def state_labels(self, spec: "InstanceSpec") -> list[str]:
         return layout_labels(spec, "on-hand stock after this period's receipt"
                              if spec.lead_time_law is None else "on-hand stock")
-
-    def random_inputs(self, spec: "InstanceSpec"):
-        return rlt.arrival_inputs(spec)
-
-    def simulation_only(self, spec: "InstanceSpec") -> str:
-        return rlt.simulation_only(spec)
 
     def step(self, spec: "InstanceSpec", state: np.ndarray, action: np.ndarray,
              demand: np.ndarray, **inputs: np.ndarray) -> tuple[np.ndarray, Outcome]:

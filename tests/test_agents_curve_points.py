@@ -1,0 +1,77 @@
+"""When learning-curve points are taken: at policy updates by default, every K steps when set.
+
+Sources: stable-baselines3's on-policy loop (its documentation of `BaseCallback`): a rollout of
+`n_envs * n_steps` environment steps is collected, then the policy is updated (`train()`), then
+the next rollout starts (`on_rollout_start`); so every point of an unchanged-policy-free curve
+sits on a multiple of `n_envs * n_steps`.
+"""
+from __future__ import annotations
+
+import csv
+
+import numpy as np
+import pytest
+import torch
+
+from invbench.agents import train
+from invbench.agents.callbacks import CURVE_COLUMNS, TrainingMonitor
+from invbench.agents.settings import sb3_settings
+from invbench.envs.spec import spec_from_dict
+
+torch.set_num_threads(1)
+SPEC = spec_from_dict({"model": "lost_sales", "lead_time": 1, "shortage_cost": 4.0,
+                       "demand": {"distribution": "poisson", "mean": 3}})
+FAST = {"threads": 1, "progress": False, "eval_replications": 4, "eval_periods": 50, "eval_warmup": 10,
+        "curve_exact_max_states": 20_000, "n_envs": 8, "n_steps": 16, "batch_size": 64, "n_epochs": 1}
+
+
+def test_points_sit_on_policy_updates_and_their_cpu_is_recorded(tmp_path):
+    rollout = 8 * 16
+    res = train(SPEC, "ppo", steps=6 * rollout, seed=0, out=tmp_path, settings=FAST, optimum=None)
+    assert res.curve and all(r["step"] % rollout == 0 for r in res.curve)
+    assert res.curve[-1]["step"] == res.steps_done
+    assert sum(r["eval_cpu_seconds"] for r in res.curve) <= res.eval_cpu_seconds + 1e-9
+    assert 0 <= res.eval_cpu_seconds <= res.cpu_seconds
+    with open(tmp_path / "learning_curve.csv", newline="") as f:
+        assert tuple(csv.DictReader(f).fieldnames) == CURVE_COLUMNS
+
+
+def test_a_set_eval_every_still_takes_points_every_k_steps():
+    res = train(SPEC, "ppo", steps=256, seed=0, settings={**FAST, "eval_every": 64}, optimum=None)
+    steps = [r["step"] for r in res.curve]
+    # SB3 reports steps in whole vector steps (8 copies): a point at the first step >= each 64
+    assert steps == [64, 128, 192, 256]
+
+
+def test_seed_gives_the_same_policy_whatever_the_curve_settings():
+    # the final policies (select_best=False): evaluation never moves the training's generators
+    a = train(SPEC, "ppo", steps=512, seed=3, settings=FAST, optimum=None, select_best=False)
+    b = train(SPEC, "ppo", steps=512, seed=3, settings={**FAST, "eval_every": 32}, optimum=None, select_best=False)
+    states = np.random.default_rng(0).integers(0, 15, size=(200, SPEC.state_dim))
+    np.testing.assert_array_equal(a.policy.act(states), b.policy.act(states))
+
+
+class _Constant:
+    def act(self, states):
+        return np.zeros(len(states), dtype=np.int64)
+
+
+def test_monitor_with_auto_points_skips_unchanged_policies_and_honours_force():
+    s = sb3_settings("ppo", {"progress": False, "eval_replications": 2, "eval_periods": 20, "eval_warmup": 0,
+                             "curve_exact": False, "checkpoint_every": 0})
+    mon = TrainingMonitor(SPEC, s, steps=1000, out=None)
+    for step in range(50, 1001, 50):  # steps without an update: the policy has not changed
+        mon.advance(step, _Constant)
+    assert mon.rows == []
+    mon.advance(1000, _Constant, force=True)  # the rollout agent's call, once per round
+    assert [r["step"] for r in mon.rows] == [1000]
+    mon.close()
+
+
+def test_an_unaffordable_first_point_leaves_the_final_measurement_as_the_curve():
+    # a point of 1e5 x 9,010 simulated periods costs far more than 10 % of a one-update run: the only
+    # row is then the final measurement (done anyway)
+    res = train(SPEC, "ppo", steps=8, seed=0, settings={**FAST, "eval_replications": 10**5, "eval_periods": 9_000},
+                optimum=None)
+    assert len(res.curve) == 1 and res.curve[0]["cost"] == pytest.approx(res.measured["cost"])
+    assert res.curve[0]["eval_cpu_seconds"] == 0.0
