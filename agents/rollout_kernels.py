@@ -1,10 +1,10 @@
 """The rollout agent's simulations as compiled loops: `sample_states` and `rollout_q` rows run
 period after period inside one numba kernel, with the model's period rules
-(`envs/models/<name>/rules.py`), the demand's inverse CDF and the current policy.
+(`envs/models/<name>/rules.py`) and the current policy.
 
 The kernel gives the numpy path's numbers (`rollout_agent.sample_states` / `rollout_q`, the
-straightforward definition): the uniforms are drawn in the same order and shapes, demand is the
-same inverse CDF (`experiments.sim_kernels.inverse_cdf` on `Demand.from_uniforms`' cdf), each
+straightforward definition): the uniforms are drawn in the same order and shapes, the demands
+are `Demand.from_uniforms` of them (once per path and period, before the loop), each
 row's costs are added period by period as `Outcome.total` sums the parts, and the Q means are
 taken by numpy on the same [N, K, M] totals (tests/test_rollout_kernels.py). The policy runs in
 the kernel when it is
@@ -28,7 +28,6 @@ import numpy as np
 from invbench.envs.models.compiled import covered, driver, jit, register, source_key
 from invbench.envs.random_inputs import PeriodInputs
 from invbench.experiments.policy_kernels import NEVER, LinearOrders, linear_orders
-from invbench.experiments.sim_kernels import guide_table, inverse_cdf
 
 from . import forward
 
@@ -60,7 +59,7 @@ def _build(period: Callable[..., None], key: int) -> Any:
     # closure value, so an edited forward gets a fresh compile (as `key` does for the rules)
     fkey = source_key(forward.row_index)
 
-    def run(state0, srow, first, has_first, U, ucol, keep0, every, kept, total, cdf, guide, ip, fp, mode,
+    def run(state0, srow, first, has_first, D, ucol, keep0, every, kept, total, ip, fp, mode,
             W, level, reorder, cap, pack, ref, coef, seq, params, sizes, heads, scale, activation, buf,
             units, poscap, case, memo0, memo_max, work, bs, ba, bn, bc, bf, hidx):  # pragma: no cover
         if key == 0 or fkey == 0:  # never true: they only key numba's disk cache (envs/models/compiled.py)
@@ -68,7 +67,7 @@ def _build(period: Callable[..., None], key: int) -> Any:
         R = srow.shape[0]
         n = state0.shape[1]
         k = ba.shape[0]
-        T = U.shape[0]
+        T = D.shape[1]
         nc = bc.shape[0]
         mt = memo0
         held = 0
@@ -144,7 +143,7 @@ def _build(period: Callable[..., None], key: int) -> Any:
                                             sl = (sl + 1) & m2
                                         for i in range(old.shape[1]):
                                             mt[sl, i] = old[e, i]
-                d = inverse_cdf(cdf, guide, U[t, ucol[r]])
+                d = D[ucol[r], t]
                 period(s, a, d, ipu, fpu, nx, costs, flows, w_)
                 c = 0.0
                 for ci in range(nc):
@@ -224,7 +223,6 @@ def _ready(spec: Any, act: Any) -> tuple[Any, Any, KernelPolicy] | None:
     if found is None or pol is None:
         return None
     rules, p = found
-    register(inverse_cdf)
     if not _HASH:  # a call, not inlined: inlined, numba's pedantic SSA check warns about its loop
         from numba.extending import register_jitable
         register_jitable(memo_slot)
@@ -237,7 +235,6 @@ def _run(run: Any, p: Any, pol: KernelPolicy, spec: Any, state0: np.ndarray, sro
          U: np.ndarray, ucol: np.ndarray, keep0: int, every: int, kept: np.ndarray) -> np.ndarray:
     rules = spec.model_def.rules
     n, k = spec.state_dim, len(spec.order_slots)
-    cdf = np.ascontiguousarray(spec.demand.pmf().cdf())
     lin, net = pol.linear, pol.net
     if net is None:
         net = forward.NetArrays(np.zeros(1), np.ones(2, dtype=np.int64), np.ones(k, dtype=np.int64),
@@ -245,8 +242,11 @@ def _run(run: Any, p: Any, pol: KernelPolicy, spec: Any, state0: np.ndarray, sro
     units = pol.units if pol.units is not None else np.zeros((k, 1), dtype=np.int64)
     total = np.zeros(len(srow))
     memo = MEMO if pol.mode == 1 else 2
-    run(np.ascontiguousarray(state0, dtype=np.int64), srow, first, len(first) > 0, U, ucol, keep0, every, kept,
-        total, cdf, guide_table(cdf), p.ints, p.floats, pol.mode, lin.weights, lin.level, lin.reorder, lin.cap,
+    # demand by Demand.from_uniforms (the numpy path's own map), one row per path: a kernel row reads
+    # its path's demands one after the other, and the K candidates of a path share them
+    D = np.ascontiguousarray(spec.demand.from_uniforms(U).T)
+    run(np.ascontiguousarray(state0, dtype=np.int64), srow, first, len(first) > 0, D, ucol, keep0, every, kept,
+        total, p.ints, p.floats, pol.mode, lin.weights, lin.level, lin.reorder, lin.cap,
         lin.pack, lin.ref, lin.coef, lin.sequence, net.params, net.sizes, net.heads, net.scale, net.activation,
         net.scratch(), units, pol.poscap, pol.case,
         np.zeros((memo, 1 + n + k), dtype=np.int64), MEMO_MAX,
