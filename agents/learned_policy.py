@@ -10,17 +10,13 @@ from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
-import torch
 
 from invbench.baselines.policy import PolicyBase
 from invbench.envs.spec import InstanceSpec
 
-from .network import PolicyNet, greedy, head_widths
+from .forward import NetArrays, batch_index, net_arrays
+from .network import PolicyNet
 from .scaling import Scaling
-
-#: Rows per forward pass, so the exact evaluator can query every state without a memory spike.
-CHUNK = 65_536
-
 
 class LearnedPolicy(PolicyBase):
     """Greedy policy of a trained network: the order size with the highest score."""
@@ -34,6 +30,7 @@ class LearnedPolicy(PolicyBase):
         self.net = net.eval()
         self.agent = agent
         self.meta: dict[str, Any] = dict(meta or {})
+        self._arrays: tuple[Any, NetArrays] | None = None
 
     def action_index(self, obs: np.ndarray) -> np.ndarray:
         """Index of the chosen order size for each row of `obs` ([B, k] with k slots)."""
@@ -42,13 +39,18 @@ class LearnedPolicy(PolicyBase):
             obs = obs.reshape(1, -1)
         if obs.shape[1] != self.spec.state_dim:
             raise ValueError(f"policy: observations must have {self.spec.state_dim} columns, got {obs.shape[1]}")
-        heads = head_widths(self.net.arch)
-        out = np.empty((obs.shape[0],) if len(heads) == 1 else (obs.shape[0], len(heads)), dtype=np.int64)
-        with torch.no_grad():
-            for i in range(0, obs.shape[0], CHUNK):
-                x = torch.from_numpy(self.scaling.features(obs[i:i + CHUNK]))
-                out[i:i + CHUNK] = greedy(self.net(x), heads).numpy()
-        return out
+        # the one forward of forward.py (float64, also run inside the rollout kernel), so the
+        # rollout agent's compiled and numpy paths cannot decide differently
+        idx = batch_index(self.arrays(), obs)
+        return idx[:, 0] if idx.shape[1] == 1 else idx
+
+    def arrays(self) -> NetArrays:
+        """The network and scaling as the forward's arrays, read again only when a weight changed
+        (torch counts in-place updates of each tensor in `_version`: a net may be trained on)."""
+        key = (id(self.net), tuple(p._version for p in self.net.parameters()), self.scaling)
+        if self._arrays is None or self._arrays[0] != key:
+            self._arrays = (key, net_arrays(self.net, self.scaling))
+        return self._arrays[1]
 
     def act(self, obs: np.ndarray) -> np.ndarray:
         obs = np.asarray(obs)

@@ -33,7 +33,9 @@ round beats it. Models with several order slots run through the same loop (one n
 per slot; candidates and per-head targets in `rollout_slots.py`); without a classical policy
 for the instance, the start is the agent's own rule (order-up-to on the position; for several
 slots the "deficit rule"), as with `start = "rule"`.
-Every period of every path is one call of the model's step function on the whole batch.
+Every period of every path is one call of the model's step function on the whole batch, or, where
+the model's rules are compiled and the policy is a network or a linear order rule, all periods
+of all paths run in one compiled loop with the same numbers (`rollout_kernels.py`).
 """
 from __future__ import annotations
 
@@ -54,6 +56,7 @@ from invbench.envs.spec import InstanceSpec
 from .learned_policy import LearnedPolicy
 from .network import PolicyNet, architecture
 from .rollout_judge import Judge, RolloutRun, round_states, widen_for
+from .rollout_kernels import OrderUpTo, compiled_rollout_q, compiled_sample_states
 from .scaling import Scaling
 from .settings import AUTO, CommonSettings, setting
 
@@ -105,12 +108,8 @@ def act_unique(act: Any, states: np.ndarray) -> np.ndarray:
 
 
 def order_up_to(level: int, spec: InstanceSpec, max_units: int) -> Any:
-    q = spec.case_pack
-
-    def act(states: np.ndarray) -> np.ndarray:
-        want = np.clip(level - states.sum(axis=1), 0, max_units)
-        return (want // q) * q
-    return act
+    """The start rule: a callable the compiled rollouts also run (`rollout_kernels.OrderUpTo`)."""
+    return OrderUpTo(level, spec, max_units)
 
 
 def best_order_up_to(spec: InstanceSpec, max_units: int, seed: int) -> tuple[int, Any]:
@@ -135,8 +134,11 @@ def sample_states(spec: InstanceSpec, act: Any, s: RolloutSettings, rng: np.rand
     inputs = PeriodInputs(spec)  # a random lead time's cut-off (none for most instances)
     per_chain = -(-s.states_per_iteration // s.chains)
     state = initial_state(spec, s.chains)
-    kept = []
     periods = s.state_warmup + per_chain * s.state_spacing
+    fast = compiled_sample_states(spec, act, s.chains, s.state_warmup, s.state_spacing, per_chain, state, rng)
+    if fast is not None:  # the same draws and states, in one compiled loop (rollout_kernels.py)
+        return fast.reshape(-1, spec.state_dim)[: s.states_per_iteration], periods * s.chains
+    kept = []
     for t in range(periods):
         if t >= s.state_warmup and (t - s.state_warmup) % s.state_spacing == 0:
             kept.append(state.copy())
@@ -157,6 +159,13 @@ def rollout_q(spec: InstanceSpec, act: Any, states: np.ndarray, sizes: np.ndarra
     step = step_fn(spec)
     N, K, M = len(states), (len(sizes) if np.ndim(sizes) == 1 else sizes.shape[1]), rollouts
     u = rng.random((horizon + 1, N, 1, M))
+    if np.ndim(sizes) == 1:
+        order = np.tile(np.repeat(sizes, M), N)
+    else:
+        order = np.repeat(sizes.reshape(N * K, -1), M, axis=0)
+    fast = compiled_rollout_q(spec, act, states, order.reshape(N * K * M, -1), K, M, u)
+    if fast is not None:  # the same rows and uniforms, in one compiled loop (rollout_kernels.py)
+        return fast.reshape(N, K, M).mean(axis=2)
     u = np.broadcast_to(u, (horizon + 1, N, K, M)).reshape(horizon + 1, N * K * M)
     inputs = PeriodInputs(spec)  # other random inputs (a lead-time cut-off): common to the K too
     v = []
@@ -165,10 +174,6 @@ def rollout_q(spec: InstanceSpec, act: Any, states: np.ndarray, sizes: np.ndarra
         x = np.broadcast_to(x, (horizon + 1, N, K, M, law.width)).reshape(horizon + 1, N * K * M, law.width)
         v.append(x[..., 0] if law.width == 1 else x)
     state = np.repeat(states, K * M, axis=0)
-    if np.ndim(sizes) == 1:
-        order = np.tile(np.repeat(sizes, M), N)
-    else:
-        order = np.repeat(sizes.reshape(N * K, -1), M, axis=0)
     total = np.zeros(N * K * M)
     for t in range(horizon + 1):
         if t > 0:

@@ -147,8 +147,11 @@ def _converters() -> dict[type, Callable[[Any, Any], LinearOrders]]:
 def linear_orders(policy: Any, spec: Any) -> LinearOrders | None:
     """The policy as a linear order rule when it is one of the kinds above (its exact class, so
     a subclass that changes `act` is not mistaken for its parent) and built for this very
-    instance; None otherwise."""
+    instance, or when it has `linear_orders(spec)` (giving a LinearOrders or None); None otherwise."""
     conv = _converters().get(type(policy))
-    if conv is None or getattr(policy, "spec", None) != spec:
+    if conv is None:  # a policy that states its own linear form (the rollout agent's start rule)
+        own = getattr(policy, "linear_orders", None)
+        return own(spec) if callable(own) else None
+    if getattr(policy, "spec", None) != spec:
         return None
     return conv(policy, spec)
