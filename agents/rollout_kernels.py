@@ -27,7 +27,7 @@ import numpy as np
 
 from invbench.envs.models.compiled import covered, driver, jit, register, source_key
 from invbench.envs.random_inputs import PeriodInputs
-from invbench.experiments.policy_kernels import NEVER, LinearOrders, linear_orders, linear_rule
+from invbench.experiments.policy_kernels import NEVER, LinearOrders, linear_orders
 
 from . import forward
 
@@ -84,8 +84,19 @@ def _build(period: Callable[..., None], key: int) -> Any:
                 if t == 0 and has_first:
                     for j in range(k):
                         a[j] = first[r, j]
-                elif mode == 0:  # the linear rule (experiments/policy_kernels.py, inlined)
-                    linear_rule(W, level, reorder, cap, pack, ref, coef, seq, s, a, n)
+                elif mode == 0:  # the linear rule (as experiments/sim_kernels.py writes it)
+                    for jj in range(k):
+                        j = seq[jj]
+                        f = 0
+                        for i in range(n):
+                            f += W[j, i] * s[i]
+                        raw = level[j] - f
+                        if ref[j] >= 0:
+                            raw += coef[j] * a[ref[j]]
+                        if f > reorder[j]:
+                            raw = 0
+                        o = min(max(raw, 0), cap[j])
+                        a[j] = o if pack[j] == 1 else (o // pack[j]) * pack[j]
                 else:  # the network, memoised per state (open addressing, linear probing)
                     # one table row per state: [used, state (n), orders (k)], one cache line
                     mask = mt.shape[0] - 1
@@ -217,8 +228,7 @@ def _ready(spec: Any, act: Any) -> tuple[Any, Any, KernelPolicy] | None:
         register_jitable(memo_slot)
         _HASH.append(memo_slot)
     forward.register_row_index()
-    register(linear_rule)
-    return driver("rollout", rules, _build, linear_rule), p, pol
+    return driver("rollout", rules, _build), p, pol
 
 
 def _run(run: Any, p: Any, pol: KernelPolicy, spec: Any, state0: np.ndarray, srow: np.ndarray, first: np.ndarray,

@@ -48,25 +48,6 @@ class LinearOrders:
         return out
 
 
-def linear_rule(W: Any, level: Any, reorder: Any, cap: Any, pack: Any, ref: Any, coef: Any, seq: Any,
-                s: Any, a: Any, n: int) -> None:  # pragma: no cover - compiled
-    """`LinearOrders.orders` for one state s into a (compiled code only, inlined: registered
-    with `compiled.register`; as a called function it was measured several times slower);
-    n: the state's length (s may be a longer scratch buffer)."""
-    for jj in range(len(level)):
-        j = seq[jj]
-        f = 0
-        for i in range(n):
-            f += W[j, i] * s[i]
-        raw = level[j] - f
-        if ref[j] >= 0:
-            raw += coef[j] * a[ref[j]]
-        if f > reorder[j]:
-            raw = 0
-        o = min(max(raw, 0), cap[j])
-        a[j] = o if pack[j] == 1 else (o // pack[j]) * pack[j]  # integer division is slow
-
-
 def _slots(spec: Any, weights: list[np.ndarray], level: list[int], *, reorder: list[int] | None = None,
            cap: list[int] | None = None, ref: list[int] | None = None, coef: list[int] | None = None,
            sequence: list[int] | None = None) -> LinearOrders:

@@ -89,15 +89,13 @@ def jit(fn: Callable[..., Any]) -> Any:
         return numba.njit(fn)
 
 
-def driver(kind: str, rules: Rules, build: Callable[[Callable[..., Any], int], Any],
-           *inlined: Callable[..., Any]) -> Any:
-    """The compiled driver `build(period, key)` for these rules, built once per process;
-    `inlined`: other registered functions the driver calls (their source joins the key)."""
+def driver(kind: str, rules: Rules, build: Callable[[Callable[..., Any], int], Any]) -> Any:
+    """The compiled driver `build(period, key)` for these rules, built once per process."""
     from . import nb_views
     fn = rules.period
     if (kind, fn) not in _DRIVERS:
         register(*rules.helpers, fn)
-        _DRIVERS[(kind, fn)] = build(fn, source_key(fn, *rules.helpers, nb_views.unmanaged, *inlined))
+        _DRIVERS[(kind, fn)] = build(fn, source_key(fn, *rules.helpers, nb_views.unmanaged))
     return _DRIVERS[(kind, fn)]
 
 
