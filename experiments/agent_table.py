@@ -30,6 +30,8 @@ from typing import Any, Iterable
 
 import pandas as pd
 
+from .tables import finite_or_zero
+
 #: Relative tolerance for "worse" between two exact costs (the solver certifies to 1e-6).
 EXACT_RTOL = 1e-6
 ALL = "all"
@@ -164,7 +166,7 @@ def _best_classical(ok: pd.DataFrame) -> tuple[dict[tuple[str, int], Any], dict[
 
 
 def _worse(r: Any, best: Any) -> bool:
-    ci_a, ci_b = _ci(r["ci_halfwidth"]), _ci(best["ci_halfwidth"])
+    ci_a, ci_b = finite_or_zero(r["ci_halfwidth"]), finite_or_zero(best["ci_halfwidth"])
     if r["method"] == "exact" and best["method"] == "exact":
         tol = EXACT_RTOL * abs(float(best["cost"]))
     else:
@@ -172,12 +174,6 @@ def _worse(r: Any, best: Any) -> bool:
     return float(r["cost"]) - float(best["cost"]) > tol
 
 
-def _ci(v: Any) -> float:
-    try:
-        f = float(v)
-    except (TypeError, ValueError):
-        return 0.0
-    return f if math.isfinite(f) else 0.0
 
 
 def _stats(agent: str, fam: str, cells: pd.DataFrame, failed: int, expected: int, seeds: list[int],

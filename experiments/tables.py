@@ -197,7 +197,7 @@ def compare_results(new: pd.DataFrame, ref: pd.DataFrame, rtol_exact: float = 2e
         if r.method == "exact":
             tol = rtol_exact * abs(float(r.cost)) + 1e-12
         else:
-            tol = math.hypot(_f(n.ci_halfwidth), _f(r.ci_halfwidth))
+            tol = math.hypot(finite_or_zero(n.ci_halfwidth), finite_or_zero(r.ci_halfwidth))
         n_params, r_params = getattr(n, "params", ""), getattr(r, "params", "")
         if not abs(delta) <= tol:
             diffs.append(f"{label}: cost {float(n.cost):.6f} vs reference {float(r.cost):.6f} "
@@ -208,7 +208,8 @@ def compare_results(new: pd.DataFrame, ref: pd.DataFrame, rtol_exact: float = 2e
     return Comparison(len(b) - len(missing), diffs, missing, extra, notes)
 
 
-def _f(v: Any) -> float:
+def finite_or_zero(v: Any) -> float:
+    """A number from a results cell; 0 for a blank, text or non-finite value."""
     try:
         f = float(v)
     except (TypeError, ValueError):
