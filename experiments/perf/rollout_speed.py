@@ -58,7 +58,7 @@ def one_round(spec, act, sizes, horizon: int) -> tuple[int, float]:
 
 def speed(L: int, p: float) -> None:
     spec = classic_spec(L, p)
-    quick = train(spec, "rollout", steps=10**12, seed=0, optimum=None,
+    quick = train(spec, "rollout", steps=10**12, seed=0, optimum=None, select_best=False,
                   settings={"threads": 1, "progress": False, "iterations": 1, "states_per_iteration": 300,
                             "eval_replications": 4, "eval_periods": 50, "eval_warmup": 10})
     scaling = scaling_for(spec, RolloutSettings())
