@@ -131,24 +131,32 @@ class Suite:
     source: str = ""
 
     def cells(self, skip_kinds: tuple[str, ...] = ()) -> list[Cell]:
-        """All cells, optimum entries first so later cells can show their gap while running."""
-        order = sorted(range(len(self.policies)), key=lambda i: self.policies[i].kind != "optimum")
-        out = []
-        for i in order:
-            p = self.policies[i]
+        """All cells, optimum entries first so later cells can show their gap while running.
+
+        Then the seed is the outer loop (policies in suite order, instances inside): a long run
+        that is stopped part-way (agent suites take many CPU-hours) already has every policy's
+        first seed on every instance, so its partial table compares all agents.
+        """
+        keyed = []
+        for i, p in enumerate(self.policies):
             if p.kind in skip_kinds:
                 continue
             ev = {**self.evaluation, **p.evaluation}
-            for spec in self.instances:
-                if p.models and spec.model not in p.models:
-                    continue
-                if p.kind == "classical" and not _supports(p.name, spec):
-                    continue  # the policy is not defined for this model or lead time
-                if p.kind == "optimum" and spec.model_def.simulation_only(spec):
-                    continue  # no exact optimum (e.g. lead times that may cross)
-                for seed in p.seeds:
-                    out.append(Cell(self.name, spec, p, seed, ev))
-        return out
+            specs = [spec for spec in self.instances if self._applies(p, spec)]
+            for rank, seed in enumerate(p.seeds):
+                keyed.extend(((p.kind != "optimum", rank, i, j), Cell(self.name, spec, p, seed, ev))
+                             for j, spec in enumerate(specs))
+        return [cell for _, cell in sorted(keyed, key=lambda kc: kc[0])]
+
+    @staticmethod
+    def _applies(p: PolicyEntry, spec: InstanceSpec) -> bool:
+        if p.models and spec.model not in p.models:
+            return False
+        if p.kind == "classical" and not _supports(p.name, spec):
+            return False  # the policy is not defined for this model or lead time
+        if p.kind == "optimum" and spec.model_def.simulation_only(spec):
+            return False  # no exact optimum (e.g. lead times that may cross)
+        return True
 
     def to_dict(self) -> dict[str, Any]:
         head: dict[str, Any] = {"name": self.name, "description": self.description}

@@ -77,6 +77,20 @@ def test_optimum_runs_once_and_seeds_multiply_other_cells():
     assert sorted(c.seed for c in cells if c.policy.kind == "classical") == [0, 1, 2]
 
 
+
+def test_a_stopped_run_has_every_policys_first_seed_first():
+    # after the optimum the seed is the outer loop: the first seed of every policy on every
+    # instance comes before any second seed, so a partial run compares all policies
+    d = _base(instances=[{"name": f"i{k}", "model": "backorder", "demand": {"distribution": "poisson",
+                                                                        "mean": 3 + k}} for k in range(3)],
+              policies=[{"name": "optimum"}, {"name": "base_stock"}, {"name": "s_S"}])
+    d["suite"]["seeds"] = [5, 6]
+    cells = suite_from_dict(d).cells()
+    got = [(c.policy.name, c.seed, c.instance.label) for c in cells]
+    assert [(g[0], g[2]) for g in got[:3]] == [("optimum", f"i{k}") for k in range(3)]
+    expected = [(p, s, f"i{k}") for s in (5, 6) for p in ("base_stock", "s_S") for k in range(3)]
+    assert got[3:] == expected
+
 def test_vary_expands_nested_fields_and_names():
     inst = {"name": "m{demand.mean}-K{fixed_order_cost}", "model": "backorder", "fixed_order_cost": 1.0,
             "demand": {"distribution": "poisson", "mean": 3.0},
