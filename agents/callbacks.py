@@ -9,9 +9,11 @@ point took.
 
 When points are taken: with `eval_every = auto` only when the policy has changed (after an SB3
 update, after a rollout-agent round), at most about 20 times a run, and only while the curve's
-CPU stays within `EVAL_CPU_SHARE` of the training's (a point's cost is estimated from the last
-one, or before the first from one batch of the policy's forward pass); a fixed `eval_every`
-takes a point every K environment steps, as set.
+simulated periods stay within `EVAL_PERIODS_PER_STEP` per training step (about 10 % of the
+training CPU); a fixed `eval_every` takes a point every K environment steps, as set. A point
+falls due every 1/20 of the step budget or, with a CPU budget, every 1/20 of that (whichever
+comes first): a run bounded by CPU (the bench gives agents a near-endless step count and 300
+CPU-seconds) would otherwise reach no step mark and keep no curve to choose its best point from.
 """
 from __future__ import annotations
 
@@ -74,6 +76,9 @@ class TrainingMonitor:
         self.rows: list[dict[str, Any]] = []
         self.best: tuple[float, Any] | None = None
         self._next_eval = self.eval_every
+        # with a CPU budget a point is also due every 1/AUTO_POINTS of it (training CPU)
+        self._cpu_every = max_cpu_seconds / AUTO_POINTS if (self.auto_eval and max_cpu_seconds > 0) else 0.0
+        self._next_eval_cpu = self._cpu_every
         self._next_ckpt = self.checkpoint_every if self.checkpoint_every > 0 else None
         self._t0, self._c0 = time.perf_counter(), time.process_time()
         self.bar = tqdm(total=steps, unit="step", disable=not settings.progress, dynamic_ncols=True, leave=False)
@@ -97,9 +102,17 @@ class TrainingMonitor:
 
     def affordable(self, step: int, reserve: int = 0) -> bool:
         """Whether one more point (plus `reserve` more) keeps the curve within its share at `step`
-        (EVAL_PERIODS_PER_STEP; deterministic, see there). The CPU it really took is recorded."""
-        taken = sum(1 for r in self.rows if r.get("eval_cpu_seconds"))
-        return (taken + 1 + reserve) * self.point_periods() <= EVAL_PERIODS_PER_STEP * step
+        (EVAL_PERIODS_PER_STEP; deterministic, see there; under a CPU budget also the measured
+        CPU, see below). The CPU each point really took is recorded."""
+        taken = [r["eval_cpu_seconds"] for r in self.rows if r.get("eval_cpu_seconds")]
+        if (len(taken) + 1 + reserve) * self.point_periods() > EVAL_PERIODS_PER_STEP * step:
+            return False
+        if self.max_cpu_seconds > 0 and taken:
+            # A CPU-bounded run ends on the clock, so it is not repeatable anyway: here the
+            # measured CPU of the points (exact evaluations of large chains included, which the
+            # count above does not see) is kept within EVAL_CPU_SHARE of the training's.
+            return self.eval_cpu + (1 + reserve) * taken[-1] <= EVAL_CPU_SHARE * self.train_cpu_seconds()
+        return True
 
     def out_of_time(self) -> bool:
         return self.max_cpu_seconds > 0 and self.cpu_seconds() >= self.max_cpu_seconds
@@ -117,7 +130,8 @@ class TrainingMonitor:
         if self.auto_eval and not (force or update):
             return  # an unchanged policy: nothing new to measure or save
         policy = None
-        due = step >= self._next_eval
+        train_cpu = self.train_cpu_seconds() if self._cpu_every else 0.0
+        due = step >= self._next_eval or (self._cpu_every > 0 and train_cpu >= self._next_eval_cpu)
         if force or (due and not self.auto_eval):
             take = True
         elif due:
@@ -130,6 +144,8 @@ class TrainingMonitor:
                 self.record(step, policy)
             while self._next_eval <= step:
                 self._next_eval += self.eval_every
+            while self._cpu_every and self._next_eval_cpu <= train_cpu:
+                self._next_eval_cpu += self._cpu_every
         if self._next_ckpt is not None and (step >= self._next_ckpt) and self.out is not None:
             with training_rng_untouched():
                 policy = policy if policy is not None else policy_fn()
@@ -186,10 +202,16 @@ class TrainingMonitor:
         return row
 
     _all_exact = True
+    _exact_too_big = False
 
     def _exact(self, policy: Any) -> float | None:
-        """Exact cost of the point when the policy's chain is small enough; None otherwise."""
-        if not self.settings.curve_exact:
+        """Exact cost of the point when the policy's chain is small enough; None otherwise.
+
+        After one point's chain has exceeded the state budget, later points are simulated only:
+        finding that out again costs seconds each time (a three-stage serial chain: about 10 s
+        to reach 200,000 states), and the best point is then chosen on the simulation anyway.
+        """
+        if not self.settings.curve_exact or self._exact_too_big:
             return None
         try:
             from invbench.baselines.policy_eval import evaluate_exact
@@ -199,6 +221,7 @@ class TrainingMonitor:
         try:
             return float(evaluate_exact(self.spec, policy, max_states=self.settings.curve_exact_max_states).cost)
         except BudgetError:
+            self._exact_too_big = True
             return None
 
     def _write_curve(self) -> None:
@@ -287,6 +310,19 @@ def sb3_callback(monitor: TrainingMonitor, policy_fn: Callable[[], Any]) -> Any:
 
         def _on_step(self) -> bool:
             monitor.advance(self.num_timesteps, policy_fn)
+            self._progress_by_cpu()
             return not monitor.out_of_time()
+
+        def _progress_by_cpu(self) -> None:
+            # SB3's schedules (DQN's epsilon decay over `exploration_fraction` of the run) follow
+            # num_timesteps / total_timesteps. When the CPU budget will end the run first (the
+            # bench asks for a near-endless step count), count progress in CPU instead, or epsilon
+            # would stay near 1 to the end. Off-policy SB3 reads `_total_timesteps` right after
+            # this callback; on-policy learning uses its own copy (PPO/A2C schedules are constant).
+            budget, n = monitor.max_cpu_seconds, self.num_timesteps
+            if budget <= 0 or n <= 0:
+                return
+            done = max(n / monitor.steps, min(monitor.cpu_seconds() / budget, 1.0))
+            self.model._total_timesteps = max(int(n / done), n) if done > 0 else monitor.steps
 
     return _Callback()

@@ -117,8 +117,16 @@ def _agent_cell(spec: InstanceSpec, payload: dict[str, Any]) -> dict[str, Any]:
         out["params"]["steps_done"] = int(done)
     out["extras"] = {"policy_map": policy_map(spec, policy), "train_seconds": train_seconds,
                      "chosen": getattr(trained, "chosen", None), "policy": policy.describe(),
-                     "learning_curve": learning_curve(trained, out_dir), "artefacts": str(out_dir)}
+                     "learning_curve": learning_curve(trained, out_dir), "artefacts": _artefacts(payload, out_dir)}
     return out
+
+
+def _artefacts(payload: dict[str, Any], out_dir: Path) -> str:
+    """Where the trained policy went: in a bench run relative to the results folder
+    (`agents/CELL_ID`), so a folder that is copied, committed or synced still points at it."""
+    if payload.get("artefact_dir"):
+        return f"agents/{payload['cell_id']}"
+    return str(out_dir)
 
 
 def _custom_cell(spec: InstanceSpec, payload: dict[str, Any]) -> dict[str, Any]:

@@ -86,3 +86,34 @@ def test_auto_points_do_not_depend_on_cpu_readings():
     assert [r["step"] for r in a.curve] == [r["step"] for r in b.curve] and a.chosen == b.chosen
     states = np.random.default_rng(1).integers(0, 15, size=(200, SPEC.state_dim))
     np.testing.assert_array_equal(a.policy.act(states), b.policy.act(states))
+
+
+def test_a_cpu_bounded_run_still_takes_points_at_updates():
+    # the bench gives agents a near-endless step count and a CPU budget: the step marks
+    # (1/20 of the steps) are never reached, so the points fall due every 1/20 of the CPU budget
+    rollout = 8 * 16
+    res = train(SPEC, "ppo", steps=10**12, seed=0, settings=FAST, optimum=None, max_cpu_seconds=4.0)
+    points = [r for r in res.curve if r["eval_cpu_seconds"] > 0]
+    assert len(points) >= 5, res.curve
+    assert len(points) <= 22  # about 20 (1/20 of the budget each), plus the final point
+    # still at policy updates; the last is the final policy's, wherever the budget stopped it
+    assert all(r["step"] % rollout == 0 for r in points[:-1])
+
+
+def test_dqn_epsilon_decays_over_the_cpu_budget_when_that_ends_the_run():
+    # stable-baselines3's DQN decays epsilon linearly over `exploration_fraction` of the run,
+    # measured as num_timesteps / total_timesteps (its documentation of `exploration_fraction`);
+    # with 10**12 steps asked and a CPU budget, progress is counted in CPU instead
+    from invbench.agents.callbacks import sb3_callback
+    from invbench.agents.sb3_agents import extract_policy, make_model
+    from invbench.agents.scaling import scaling_for
+
+    s = sb3_settings("dqn", {**{k: v for k, v in FAST.items() if k not in ("n_steps", "n_epochs")},
+                             "learning_starts": 100, "checkpoint_every": 0, "curve_exact": False})
+    scaling = scaling_for(SPEC, s)
+    model = make_model("dqn", SPEC, s, scaling, seed=0)
+    mon = TrainingMonitor(SPEC, s, steps=10**12, out=None, max_cpu_seconds=3.0)
+    model.learn(total_timesteps=10**12, callback=sb3_callback(mon, lambda: extract_policy(model, "dqn", SPEC, s, scaling)))
+    mon.close()
+    assert model.num_timesteps < 10**9  # the CPU budget ended it
+    assert model.exploration_rate == pytest.approx(s.exploration_final_eps)

@@ -71,3 +71,5 @@ def test_agent_cell_trains_and_records_its_curve(tmp_path):
     assert curve and all({"step", "cost"} <= set(r) for r in curve)
     assert rec["extras"]["policy_map"]["orders"]  # lost sales with L = 2: a map is drawn
     assert (tmp_path / "out" / "agents" / rec["cell_id"] / "policy.json").is_file()
+    # recorded relative to the results folder, so a copied or committed folder still finds it
+    assert rec["extras"]["artefacts"] == f"agents/{rec['cell_id']}"
