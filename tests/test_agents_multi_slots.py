@@ -157,3 +157,27 @@ def test_rollout_candidates_stay_small_and_heads_recover_the_joint_best():
         block = first[0, 10 * j:10 * (j + 1)]
         assert block[:, j].tolist() == list(range(10))
         assert all((block[:, i] == [2, 3, 4][i]).all() for i in range(3) if i != j)
+
+
+def _poisson_multi_slot_instances():
+    from invbench.experiments.suite import load_suite
+    return [i for i in load_suite("agents-mixed").instances
+            if len(i.order_slots) > 1 and i.demand.distribution == "poisson"]
+
+
+@pytest.mark.parametrize("spec", _poisson_multi_slot_instances(), ids=lambda i: i.label)
+def test_every_slot_is_bounded_by_the_one_period_demand_quantile(spec):
+    # each head ends at the first legal size reaching the 0.9999 quantile of one period's demand
+    # (the bound of one slot); reference quantile: scipy.stats.poisson.ppf
+    from scipy import stats
+
+    from invbench.agents.scaling import scaling_for
+    from invbench.agents.settings import sb3_settings
+
+    s = sb3_settings("ppo", {})
+    q = int(stats.poisson.ppf(s.order_quantile, spec.demand.params["mean"]))
+    sc = scaling_for(spec, s)
+    for sizes, slot in zip(sc.slot_sizes, spec.order_slots):
+        legal = [int(u) for u in slot.sizes_units]
+        reach = next((u for u in legal if u >= q), legal[-1])
+        assert list(sizes) == [u for u in legal if u <= reach]
