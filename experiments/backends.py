@@ -78,6 +78,12 @@ def _init_worker(driver_pid: int) -> None:
         torch.set_num_threads(1)
     except ImportError:
         pass
+    # tqdm takes a multiprocessing lock (a named semaphore) for any bar, even a disabled one; a
+    # worker stopped mid-cell (Ctrl-C, SIGTERM) cannot release it, and Python's resource
+    # tracker then prints a "leaked semaphore" warning after the one-line message. Workers
+    # draw no bars, so a thread lock serves.
+    from tqdm import tqdm
+    tqdm.set_lock(threading.RLock())
 
 
 def run_inline(payloads: Iterable[dict[str, Any]]) -> Iterator[dict[str, Any]]:

@@ -56,7 +56,14 @@ def simulate(spec: InstanceSpec, policy: Any, seed: int, reps: int, periods: int
 
 
 def sim_base_stock(spec: InstanceSpec, params: dict[str, Any], seed: int, evaluation: dict[str, Any]) -> dict[str, Any]:
-    """Custom cell: a given order-up-to level S, simulated. `pause` (s) paces the kill test."""
+    """Custom cell: a given order-up-to level S, simulated. `pause` (s) paces the kill test.
+
+    Like a training cell it opens a (disabled) tqdm bar first: tqdm then holds a lock that a
+    worker killed mid-cell must not leave behind as a "leaked semaphore" warning.
+    """
+    from tqdm import tqdm
+
+    tqdm(total=1, disable=True).close()
     time.sleep(float(params.get("pause", 0.0)))
     pol = TinyBaseStock(spec, params["S"])
     cost, ci = simulate(spec, pol, seed, params.get("reps", 20), params.get("periods", 300), 50)
