@@ -190,7 +190,8 @@ def slot_bounds(spec: InstanceSpec, settings: CommonSettings) -> list[tuple[int,
     Why the one-period quantile for every slot: in steady state the orders that matter replace
     about one period's demand (the top stage of a serial chain under echelon base-stock orders
     the last demand; a lower stage orders more only after the stage above ran short, which is
-    rare). Wider heads make PPO much slower to learn: on the three-stage serial instance of the
+    rare: the optimal policies of the agents-mixed suite's serial instances order above this
+    bound in 0.007 % to 0.4 % of periods, those of its dual-sourcing instances never). Wider heads make PPO much slower to learn: on the three-stage serial instance of the
     agents-mixed suite, seed 0, PPO was 4.1 % above the optimum after 120 CPU-seconds with this
     bound (11 or 12 units per stage), 16.9 % with bounds scaled to the model's order caps (33,
     22, 11) and 100 % or more after 60 CPU-seconds with the caps themselves (57, 38, 19).
