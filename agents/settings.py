@@ -69,7 +69,7 @@ class SB3Settings(CommonSettings):
     max_grad_norm: float = setting(0.5, "float", "gradient clipping norm", 0.0, None, True, agents=("ppo", "a2c"))
     buffer_size: int = setting(200_000, "int", "replay buffer size", 1, 10**8, agents=("dqn",))
     learning_starts: int = setting(5_000, "int", "steps before the first update", 0, 10**9, agents=("dqn",))
-    exploration_fraction: float = setting(0.3, "float", "share of training with decaying epsilon", 0.0, 1.0, agents=("dqn",))
+    exploration_fraction: float = setting(0.3, "float", "share of training with decaying epsilon (of the CPU budget when that ends the run first)", 0.0, 1.0, agents=("dqn",))
     exploration_final_eps: float = setting(0.02, "float", "final epsilon", 0.0, 1.0, agents=("dqn",))
     target_update_interval: int = setting(2_000, "int", "steps between target-network updates", 1, 10**9, agents=("dqn",))
     train_freq: int = setting(4, "int", "env steps (per copy) between updates", 1, 10**6, agents=("dqn",))
