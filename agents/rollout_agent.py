@@ -264,6 +264,8 @@ def run_rollout_agent(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, 
             states, n = sample_states(spec, act, dataclasses.replace(s, states_per_iteration=n_states), rng)
             done += n
         current = act_unique(act, states).reshape(len(states), k)
+        if k > 1:  # a state the widening did not see may get a start order beyond a head: snap it
+            current = np.column_stack([scaling.slot_units(j)[ix] for j, ix in enumerate(to_index(scaling, current).T)])
         first = scaling.order_sizes_units if k == 1 else candidates(scaling, current)
         q = rollout_q(spec, act, states, first, s.rollouts, horizon, rng)
         done += q.size * s.rollouts * (horizon + 1)

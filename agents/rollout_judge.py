@@ -64,12 +64,13 @@ class RolloutRun:
 
 
 def widen_for(spec: InstanceSpec, scaling: Scaling, act: Any, states: np.ndarray, settings: Any) -> Scaling:
-    """A one-slot scaling whose order sizes and position cap (the automatic ones) cover what the
-    starting policy does on its own states: e.g. (s, S) orders batches larger than a demand
-    quantile, which the network could not otherwise express."""
+    """A scaling whose order sizes and position cap (the automatic ones) cover what the starting
+    policy does on its own states: e.g. (s, S) orders batches larger than a demand quantile, or
+    an echelon base-stock policy refills a serial stage after the stage above ran short, which
+    the network could not otherwise express."""
     from .settings import AUTO
     if scaling.n_slots > 1:
-        return scaling
+        return _widen_slots(spec, scaling, act, states, settings)
     orders = np.asarray(act(states), dtype=np.int64).reshape(-1)
     q = scaling.case_pack
     units, cap = scaling.max_order_units, scaling.position_cap
@@ -81,6 +82,27 @@ def widen_for(spec: InstanceSpec, scaling: Scaling, act: Any, states: np.ndarray
     if (units, cap) == (scaling.max_order_units, scaling.position_cap):
         return scaling
     return dataclasses.replace(scaling, max_order_units=units, position_cap=cap, slot_sizes=())
+
+
+def _widen_slots(spec: InstanceSpec, scaling: Scaling, act: Any, states: np.ndarray, settings: Any) -> Scaling:
+    """Several slots: each head widened to the slot's legal sizes up to the start's largest order
+    there plus a margin (automatic bounds only)."""
+    from .settings import AUTO
+    if settings.max_order_units != AUTO or not len(states):
+        return scaling
+    orders = np.asarray(act(states), dtype=np.int64).reshape(len(states), scaling.n_slots)
+    margin = int(np.ceil(2 * np.sqrt(spec.demand.var)))
+    slots = []
+    for j, (sizes, slot) in enumerate(zip(scaling.slot_sizes, spec.order_slots)):
+        top = int(orders[:, j].max())
+        if top > sizes[-1]:
+            legal = [int(u) for u in slot.sizes_units]
+            reach = next((u for u in legal if u >= top + margin), legal[-1])
+            sizes = tuple(u for u in legal if u <= reach)
+        slots.append(tuple(sizes))
+    if tuple(slots) == scaling.slot_sizes:
+        return scaling
+    return dataclasses.replace(scaling, max_order_units=max(s[-1] for s in slots), slot_sizes=tuple(slots))
 
 
 def round_states(planned: int, last_round_cpu: float, remaining_cpu: float | None, floor: int) -> int:

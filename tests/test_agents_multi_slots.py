@@ -181,3 +181,20 @@ def test_every_slot_is_bounded_by_the_one_period_demand_quantile(spec):
         legal = [int(u) for u in slot.sizes_units]
         reach = next((u for u in legal if u >= q), legal[-1])
         assert list(sizes) == [u for u in legal if u <= reach]
+
+
+def test_rollout_agent_covers_a_start_that_orders_beyond_the_slot_bound():
+    # the start of a serial chain (echelon base stock) refills stage 1 with more than one
+    # period's demand after stage 2 ran short: the heads widen to express it, and a state
+    # whose start order lies beyond a head is snapped to it (this failed with an IndexError)
+    from invbench.agents.rollout_agent import RolloutSettings
+    from invbench.agents.scaling import scaling_for
+
+    spec = next(i for i in _poisson_multi_slot_instances() if i.model == "serial")
+    base = scaling_for(spec, RolloutSettings())
+    res = train(spec, "rollout", steps=1, seed=0, optimum=None, select_best=False,
+                settings={**QUIET, **TINY["rollout"][0], **FAST_CURVE})
+    sizes = res.policy.scaling.slot_sizes
+    assert all(len(w) >= len(b) for w, b in zip(sizes, base.slot_sizes))
+    orders = res.policy.act(_states(spec))
+    assert _legal(spec, orders)
