@@ -87,6 +87,7 @@ def widen_for(spec: InstanceSpec, scaling: Scaling, act: Any, states: np.ndarray
 def _widen_slots(spec: InstanceSpec, scaling: Scaling, act: Any, states: np.ndarray, settings: Any) -> Scaling:
     """Several slots: each head widened to the slot's legal sizes up to the start's largest order
     there plus a margin (automatic bounds only)."""
+    from .scaling import sizes_reaching
     from .settings import AUTO
     if settings.max_order_units != AUTO or not len(states):
         return scaling
@@ -96,9 +97,7 @@ def _widen_slots(spec: InstanceSpec, scaling: Scaling, act: Any, states: np.ndar
     for j, (sizes, slot) in enumerate(zip(scaling.slot_sizes, spec.order_slots)):
         top = int(orders[:, j].max())
         if top > sizes[-1]:
-            legal = [int(u) for u in slot.sizes_units]
-            reach = next((u for u in legal if u >= top + margin), legal[-1])
-            sizes = tuple(u for u in legal if u <= reach)
+            sizes = sizes_reaching(slot.sizes_units, top + margin)
         slots.append(tuple(sizes))
     if tuple(slots) == scaling.slot_sizes:
         return scaling

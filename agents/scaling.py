@@ -208,11 +208,17 @@ def slot_bounds(spec: InstanceSpec, settings: CommonSettings) -> list[tuple[int,
         sizes = [int(u) for u in slot.sizes_units]
         if settings.max_order_units != AUTO:
             sizes = [u for u in sizes if u <= units]
-        else:  # up to the first size reaching the quantile (all sizes when none does)
-            reach = next((u for u in sizes if u >= units), sizes[-1])
-            sizes = [u for u in sizes if u <= reach]
+        else:
+            sizes = list(sizes_reaching(sizes, units))
         out.append(tuple(sizes))
     return out
+
+
+def sizes_reaching(legal: Any, units: int) -> tuple[int, ...]:
+    """Legal sizes up to the first one at or above `units` (all of them when none is)."""
+    legal = [int(u) for u in legal]
+    reach = next((u for u in legal if u >= units), legal[-1])
+    return tuple(u for u in legal if u <= reach)
 
 
 def deficit_rule(spec: InstanceSpec, level: int, slots: list[tuple[int, ...]] | tuple[tuple[int, ...], ...]) -> Any:
