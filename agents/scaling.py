@@ -162,6 +162,10 @@ def order_bound(spec: InstanceSpec, settings: CommonSettings) -> int:
             raise SpecError(f"agent.max_order_units: must be <= the instance's order cap {spec.order_cap_units}, got {units}")
         return units
     k = max(demand_quantile(spec, settings.order_quantile), 1)
+    batch = batch_policy(spec)
+    if batch is not None:  # the batch policy's largest order (from just above s) plus room
+        s_, S_ = batch
+        k = max(k, S_ - s_ - 1 + k + _margin(spec))
     units = -(-k // q) * q
     return int(min(units, spec.order_cap_units))
 
@@ -172,14 +176,47 @@ def position_cap_for(spec: InstanceSpec) -> int:
     The backorder order-up-to level (critical fractile of lead-time demand) bounds the optimal
     lost-sales position after ordering (Morton 1969; Zipkin 2008 — from memory), so a cap a
     little above it never cuts off the optimum, while it keeps every learned policy stable and
-    its reachable state space finite for the exact evaluator. Margin: two standard deviations
-    of lead-time demand plus one case pack. A random lead time counts as its longest value
-    (a larger level, so the cap stays on the safe side).
+    its reachable state space finite for the exact evaluator. Margin: `_margin`. A random lead
+    time counts as its longest value (a larger level, so the cap stays on the safe side). With a
+    fixed order cost the level is at least the batch policy's S (see `batch_policy`).
     """
     ratio = critical_ratio(spec)
     level = demand_quantile(spec, min(max(ratio, 0.5), 1 - 1e-9), spec.longest_lead_time + 1)
+    batch = batch_policy(spec)
+    if batch is not None:
+        level = max(level, batch[1])
+    return int(level + _margin(spec))
+
+
+def _margin(spec: InstanceSpec) -> int:
+    """Room above a level taken from a policy or a quantile: two standard deviations of
+    lead-time demand plus one case pack."""
     sd = float(np.sqrt(spec.demand.var * (spec.longest_lead_time + 1)))
-    return int(level + int(np.ceil(2 * sd)) + spec.case_pack)
+    return int(np.ceil(2 * sd)) + spec.case_pack
+
+
+def batch_policy(spec: InstanceSpec) -> tuple[int, int] | None:
+    """(s, S) of the optimal (s, S) policy of the instance's backorder twin when there is a fixed
+    order cost (Zheng & Federgruen 1991), else None (also where the model has no such twin).
+
+    Why: with a fixed order cost the optimum orders in batches (Scarf 1960: (s, S) is optimal
+    under backorders), up to S - s - 1 + one period's demand at once and up to a position of S,
+    far beyond one period's demand quantile when K is large: on the agents-mixed instance
+    bo-K100-L0-p9 (Poisson 10, K = 100) the optimal (s, S) is (5, 48), while the quantile bound
+    was 23 units and the cap 22, which held PPO 38 % above the optimum.
+    """
+    if spec.fixed_order_cost <= 0 or len(spec.order_slots) > 1:
+        return None
+    twin = spec.model_def.backorder_twin(spec)
+    if twin is None:
+        return None
+    from invbench.baselines.policies.zheng_federgruen import zheng_federgruen
+    from invbench.envs.errors import BudgetError
+    try:
+        zf = zheng_federgruen(twin)
+    except (BudgetError, SpecError, ValueError):  # no finite optimum (e.g. free storage): keep the quantile rules
+        return None
+    return int(zf.s), int(zf.S)
 
 
 def slot_bounds(spec: InstanceSpec, settings: CommonSettings) -> list[tuple[int, ...]]:

@@ -117,3 +117,6 @@ def test_dqn_epsilon_decays_over_the_cpu_budget_when_that_ends_the_run():
     mon.close()
     assert model.num_timesteps < 10**9  # the CPU budget ended it
     assert model.exploration_rate == pytest.approx(s.exploration_final_eps)
+    # the learning rate decays with the same progress, to lr_final_share of its start (0 by default)
+    lr = model.policy.optimizer.param_groups[0]["lr"]
+    assert lr < 0.2 * float(s.learning_rate)
