@@ -111,7 +111,7 @@ class TrainingMonitor:
             # A CPU-bounded run ends on the clock, so it is not repeatable anyway: here the
             # measured CPU of the points (exact evaluations of large chains included, which the
             # count above does not see) is kept within EVAL_CPU_SHARE of the training's.
-            return self.eval_cpu + (1 + reserve) * taken[-1] <= EVAL_CPU_SHARE * self.train_cpu_seconds()
+            return self.eval_cpu + (1 + reserve) * self._point_cpu <= EVAL_CPU_SHARE * self.train_cpu_seconds()
         return True
 
     def out_of_time(self) -> bool:
@@ -177,6 +177,7 @@ class TrainingMonitor:
         est = simulate(self.spec, policy.act, replications=s.eval_replications, periods=s.eval_periods,
                        warmup=s.eval_warmup, seed=s.eval_seed)
         gap = 100.0 * (est.cost - self.optimum) / self.optimum if self.optimum else None
+        sim_cpu = time.process_time() - c0
         exact = self._exact(policy)
         exact_gap = 100.0 * (exact - self.optimum) / self.optimum if (self.optimum and exact is not None) else None
         row = {"step": step, "wall_seconds": round(self.wall_seconds(), 3), "cpu_seconds": round(self.cpu_seconds(), 3),
@@ -184,6 +185,10 @@ class TrainingMonitor:
                "exact_gap_pct": exact_gap}
         cost = time.process_time() - c0
         self.eval_cpu += cost
+        # what the next point will cost: this one's, less an exact evaluation that will not be
+        # tried again (one that ran out of states can take seconds, and counting it again kept
+        # later points out of the CPU share for the rest of a run)
+        self._point_cpu = sim_cpu if self._exact_too_big else cost
         row["eval_cpu_seconds"] = max(round(cost, 4), 1e-4)  # > 0: marks a point (not the final measurement)
         self.rows.append(row)
         # the best point is chosen on the exact cost when every point has one (no selection noise)
@@ -203,6 +208,7 @@ class TrainingMonitor:
 
     _all_exact = True
     _exact_too_big = False
+    _point_cpu = 0.0
 
     def _exact(self, policy: Any) -> float | None:
         """Exact cost of the point when the policy's chain is small enough; None otherwise.

@@ -69,6 +69,38 @@ def test_monitor_with_auto_points_skips_unchanged_policies_and_honours_force():
     mon.close()
 
 
+def test_an_exact_evaluation_that_ran_out_of_states_does_not_price_later_points(monkeypatch):
+    # the first point's exact evaluation burns CPU and then exceeds its state budget; later points
+    # are simulated only, so the CPU share must be judged on a simulated point's cost, or the
+    # rest of a CPU-bounded run gets no points (seen: PPO, 120 CPU-s, two points in all)
+    import time
+
+    import invbench.baselines.policy_eval as policy_eval
+    from invbench.envs.errors import BudgetError
+    from invbench.experiments.simulate import simulate
+
+    def too_big(*args, **kwargs):
+        t0 = time.process_time()
+        while time.process_time() - t0 < 0.5:
+            pass
+        raise BudgetError("over the state budget")
+
+    monkeypatch.setattr(policy_eval, "evaluate_exact", too_big)
+    s = sb3_settings("ppo", {"progress": False, "eval_replications": 2, "eval_periods": 20, "eval_warmup": 0,
+                             "checkpoint_every": 0})
+    mon = TrainingMonitor(SPEC, s, steps=10**12, out=None, max_cpu_seconds=10**6)
+    simulate(SPEC, _Constant().act, replications=2, periods=20, warmup=0)  # compiled once, outside the points
+    mon.record(128, _Constant())
+    first = mon.rows[0]["eval_cpu_seconds"]
+    assert first >= 0.5
+    # training CPU that pays for two simulated points within the 10 % share, not for two like the first
+    monkeypatch.setattr(mon, "train_cpu_seconds", lambda: 10 * (mon.eval_cpu + 0.2))
+    assert mon.affordable(10**9, reserve=1)
+    mon.record(10**9, _Constant())
+    assert mon.rows[1]["eval_cpu_seconds"] < 0.1 and mon.rows[1]["exact_cost"] is None
+    mon.close()
+
+
 def test_an_unaffordable_first_point_leaves_the_final_measurement_as_the_curve():
     # a point of 1e5 x 9,010 simulated periods costs far more than 10 % of a one-update run: the only
     # row is then the final measurement (done anyway)
