@@ -165,7 +165,7 @@ def order_bound(spec: InstanceSpec, settings: CommonSettings) -> int:
     batch = batch_policy(spec)
     if batch is not None:  # the batch policy's largest order (from just above s) plus room
         s_, S_ = batch
-        k = max(k, S_ - s_ - 1 + k + _margin(spec))
+        k = S_ - s_ - 1 + k + _margin(spec)  # S > s: never below the quantile bound
     units = -(-k // q) * q
     return int(min(units, spec.order_cap_units))
 
