@@ -134,7 +134,7 @@ def _pct(v: float | None, digits: int = 2) -> str:
 def _row(r: AgentStats) -> list[str]:
     cells = f"{r.done}/{r.expected}" + (f" ({r.failed} failed)" if r.failed else "")
     rng = "" if r.range_mean is None else f"{_pct(r.range_mean)} / {_pct(r.range_max)}"
-    worse = f"{r.worse_instances} of {r.instances} ({r.worse_cells} cells)"
+    worse = f"{r.worse_instances} of {r.instances} ({r.worse_cells} cell{'' if r.worse_cells == 1 else 's'})"
     return [r.agent, cells, f"{r.exact} / {r.simulated}", _pct(r.mean_gap), _pct(r.max_gap), rng,
             _pct(r.seed_sd), worse]
 
