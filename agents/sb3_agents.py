@@ -15,6 +15,7 @@ from torch import nn
 from invbench.envs.errors import SpecError
 from invbench.envs.spec import InstanceSpec
 
+from .dqn_loss import dqn_class
 from .learned_policy import LearnedPolicy
 from .network import ACTIVATIONS, from_linears
 from .scaling import Scaling
@@ -36,7 +37,7 @@ def check_agent_fits(agent: str, spec: InstanceSpec) -> None:
 
 def make_model(agent: str, spec: InstanceSpec, settings: SB3Settings, scaling: Scaling, seed: int) -> Any:
     """An SB3 model of `agent` on the batch simulator, seeded, CPU only."""
-    from stable_baselines3 import A2C, DQN, PPO
+    from stable_baselines3 import A2C, PPO
 
     check_agent_fits(agent, spec)
     env = InventorySB3VecEnv(spec, int(settings.n_envs), scaling, episode_length=settings.episode_length, seed=seed)
@@ -55,7 +56,7 @@ def make_model(agent: str, spec: InstanceSpec, settings: SB3Settings, scaling: S
                    policy_kwargs=dict(net_arch=dict(pi=hidden, vf=hidden), activation_fn=act_fn),
                    seed=seed, device="cpu", verbose=0)
     if agent == "dqn":
-        return DQN("MlpPolicy", env, learning_rate=LinearDecay(float(s.learning_rate), s.lr_final_share),
+        return dqn_class(s.td_loss)("MlpPolicy", env, learning_rate=LinearDecay(float(s.learning_rate), s.lr_final_share),
                    buffer_size=s.buffer_size,
                    learning_starts=s.learning_starts, batch_size=s.batch_size, gamma=s.gamma,
                    train_freq=s.train_freq, gradient_steps=s.gradient_steps,
