@@ -82,8 +82,11 @@ def test_ctrl_c_stops_workers_and_keeps_finished_cells(tmp_path):
     pols = [sim_policy(f"S{S}", S, pause=0.3) for S in (4, 6, 8, 10, 12, 14)]
     path = write_suite(tmp_path / "int.toml", [instance("a"), instance("b")], pols, [0, 1], name="int")
     out = tmp_path / "run"
+    # SIGINT back to its default in the child: a shell ignores it in background jobs, and Python
+    # keeps an inherited "ignore" (so would the run), which is not what a terminal's Ctrl-C meets
     proc = subprocess.Popen(_bench_cmd(path, out), cwd=REPO_ROOT, env=subprocess_env(), stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True, start_new_session=True)
+                            stderr=subprocess.PIPE, text=True, start_new_session=True,
+                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     try:
         _wait_for_cells(proc, out / "cells", 2)
         os.killpg(proc.pid, signal.SIGINT)  # what a terminal's Ctrl-C sends: the whole group
