@@ -99,9 +99,7 @@ def _agent_cell(spec: InstanceSpec, payload: dict[str, Any]) -> dict[str, Any]:
     if out_dir.exists():
         shutil.rmtree(out_dir)  # leftovers of a killed attempt must not mix with the new one
     out_dir.mkdir(parents=True)
-    # Inside a bench: no nested progress bars, and one torch thread per cell so that N workers
-    # share N cores and a cell gives the same result on every backend. Both can be overridden.
-    settings = {"progress": False, "threads": 1, **(pol.get("settings") or {})}
+    settings = agent_settings(pol)
     t0 = time.perf_counter()
     budget = {"max_cpu_seconds": float(pol["cpu_seconds"])} if pol.get("cpu_seconds") else {}
     trained = train(spec, agent=pol["agent"], steps=int(pol["steps"]), seed=int(payload["seed"]),
@@ -119,6 +117,13 @@ def _agent_cell(spec: InstanceSpec, payload: dict[str, Any]) -> dict[str, Any]:
                      "chosen": getattr(trained, "chosen", None), "policy": policy.describe(),
                      "learning_curve": learning_curve(trained, out_dir), "artefacts": _artefacts(payload, out_dir)}
     return out
+
+
+def agent_settings(pol: dict[str, Any]) -> dict[str, Any]:
+    """The settings an agent entry trains with inside a bench (what the stale check compares)."""
+    # No nested progress bars, and one torch thread per cell so that N workers share N cores
+    # and a cell gives the same result on every backend. Both can be overridden.
+    return {"progress": False, "threads": 1, **(pol.get("settings") or {})}
 
 
 def _artefacts(payload: dict[str, Any], out_dir: Path) -> str:

@@ -16,7 +16,7 @@ from invbench.envs.errors import SpecError
 #: Most processes `--workers` may ask for; more would only queue on the same cores.
 MAX_WORKERS = 1024
 #: What a results folder holds (checked before a run so nothing is in the way of a write).
-RESULT_DIRS = ("cells", "failed", "damaged", "agents")
+RESULT_DIRS = ("cells", "failed", "damaged", "agents", "stale")
 RESULT_FILES = ("suite.toml", "results.csv", "results.parquet", "run.json")
 REPORT_FILES = ("report.md", "report.html", "gap.png", "gap_vs_lead_time.png", "learning_curves.png",
                 "policy_map.png", "results.csv", "results.parquet")
@@ -59,6 +59,9 @@ def register(subparsers: Any) -> None:
     b.add_argument("--address", default=None,
                    help="ray backend: address HOST:PORT of a running Ray cluster (default: a private local Ray instance)")
     b.add_argument("--skip-agents", action="store_true", help="leave out the RL agent cells")
+    b.add_argument("--rerun-stale", action="store_true",
+                   help="train again finished agent cells whose recorded settings differ from today's "
+                        "defaults (the old results move to stale/)")
     b.add_argument("--no-report", action="store_true", help="do not write the report at the end")
     b.add_argument("--no-progress", action="store_true", help="no progress bar (summary lines only)")
     b.add_argument("--list", action="store_true", help="list the packaged suites and exit")
@@ -126,7 +129,7 @@ def _bench(args: argparse.Namespace) -> int:
         with stop_on_sigterm():
             res = run_bench(suite, out, backend=args.backend, workers=args.workers, address=args.address,
                             skip_kinds=("agent",) if args.skip_agents else (), progress=not args.no_progress,
-                            command=["invbench", *sys.argv[1:]])
+                            command=["invbench", *sys.argv[1:]], rerun_stale=args.rerun_stale)
     except Terminated:
         sys.stderr.write(f"invbench: terminated (SIGTERM); finished cells are kept and {out / 'results.csv'} "
                          f"is up to date; rerun the same command to resume\n")

@@ -15,6 +15,7 @@ from typing import Any
 
 from .backends import execute
 from .interrupts import finish_first
+from .stale import find_stale, move_stale, warning_lines
 from .store import ResultStore, collect_metadata
 from .suite import Suite
 
@@ -52,11 +53,13 @@ def summary_line(rec: dict[str, Any], optimum: float | None, done: int, total: i
 
 def run_bench(suite: Suite, out: str | Path, *, backend: str = "local", workers: int | None = None,
               address: str | None = None, skip_kinds: tuple[str, ...] = (), progress: bool = True,
-              command: list[str] | None = None) -> BenchResult:
-    """Run every cell of `suite` not yet finished in `out`, storing each as it lands."""
+              command: list[str] | None = None, rerun_stale: bool = False) -> BenchResult:
+    """Run every cell of `suite` not yet finished in `out`, storing each as it lands.
+
+    rerun_stale: also rerun finished agent cells trained under other settings than today's
+    defaults give (see stale.py); without it they are kept and named in a warning.
+    """
     from tqdm import tqdm
-
-
 
     t0 = time.perf_counter()
     out = Path(out).resolve()
@@ -64,13 +67,21 @@ def run_bench(suite: Suite, out: str | Path, *, backend: str = "local", workers:
     store.open(suite)
     cells = suite.cells(skip_kinds)
     done = store.finished()
+    stale = find_stale(cells, done, out)
+    if stale and rerun_stale:
+        move_stale(out, stale, store.warn)
+        done = store.finished()
+    else:
+        for line in warning_lines(stale):
+            store.warn(line)
     pending = [c for c in cells if c.cell_id not in done]
     optimum = {r["instance"]: r["cost"] for r in done.values() if r.get("kind") == "optimum"}
     workers = workers or os.cpu_count() or 1
     info: dict[str, Any] = {"suite": suite.name, "suite_source": suite.source, "backend": backend,
                             "workers": workers if backend == "local" else None, "address": address,
                             "command": command if command is not None else list(sys.argv),
-                            "skip_kinds": list(skip_kinds),
+                            "skip_kinds": list(skip_kinds), "stale_cells": len(stale),
+                            "rerun_stale": rerun_stale,
                             "started": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
                             "cells": len(cells), "already_done": len(cells) - len(pending),
                             **collect_metadata()}
