@@ -43,6 +43,12 @@ CURVE_COLUMNS = ("step", "wall_seconds", "cpu_seconds", "cost", "ci_halfwidth", 
                  "exact_gap_pct", "eval_cpu_seconds")
 #: with eval_every = auto the curve's points may use at most this share of the training's CPU time
 EVAL_CPU_SHARE = 0.10
+#: Most work (stored transitions x sweeps) of a point's exact evaluation's iteration; one that
+#: needs more is abandoned for simulation. Without it a point on a slowly mixing serial chain near
+#: the 200,000-state budget took 290 CPU-seconds (agents-mixed, ser-n2-L2.1-p19-nb, rollout seed
+#: 1). Measured on the 2-core development machine: 4.2 ns per stored transition and sweep, so
+#: about 4 s; a 185,000-state chain of that instance (10.6 M transitions) converges well within.
+CURVE_EXACT_WORK = 1e9
 #: with eval_every = auto, at most about this many points per run
 AUTO_POINTS = 20
 #: With eval_every = auto a point is taken only when the simulated periods of all points so far
@@ -171,37 +177,58 @@ class TrainingMonitor:
         with one_torch_thread():
             return self._record(step, policy)
 
-    def _record(self, step: int, policy: Any) -> dict[str, Any]:
+    def simulated(self, policy: Any) -> Any:
+        """The curve's simulation of `policy`: the same common random numbers (`eval_seed`) each time."""
         s = self.settings
+        with one_torch_thread():
+            return simulate(self.spec, policy.act, replications=s.eval_replications, periods=s.eval_periods,
+                            warmup=s.eval_warmup, seed=s.eval_seed)
+
+    def simulated_cost(self, policy: Any) -> float:
+        """`simulated(policy).cost` for a caller outside a point (the rollout agent's judge);
+        its CPU counts as the curve's."""
         c0 = time.process_time()
-        est = simulate(self.spec, policy.act, replications=s.eval_replications, periods=s.eval_periods,
-                       warmup=s.eval_warmup, seed=s.eval_seed)
-        gap = 100.0 * (est.cost - self.optimum) / self.optimum if self.optimum else None
-        sim_cpu = time.process_time() - c0
+        cost = float(self.simulated(policy).cost)
+        self.eval_cpu += time.process_time() - c0
+        return cost
+
+    def _record(self, step: int, policy: Any) -> dict[str, Any]:
+        c0 = time.process_time()
         exact = self._exact(policy)
+        # An exact cost makes the point's simulation redundant (on small chains it costs 20 to
+        # 100 times the exact evaluation). It is simulated only when some point has no exact cost,
+        # and from then on every point is compared on the simulation.
+        c1 = time.process_time()
+        est = None if (exact is not None and self._all_exact) else self.simulated(policy)
+        sim_cpu = time.process_time() - c1
+        self.last_simulated = None if est is None else float(est.cost)
+        cost = exact if est is None else float(est.cost)
+        gap = 100.0 * (cost - self.optimum) / self.optimum if self.optimum else None
         exact_gap = 100.0 * (exact - self.optimum) / self.optimum if (self.optimum and exact is not None) else None
         row = {"step": step, "wall_seconds": round(self.wall_seconds(), 3), "cpu_seconds": round(self.cpu_seconds(), 3),
-               "cost": est.cost, "ci_halfwidth": float(est.ci_halfwidth), "gap_pct": gap, "exact_cost": exact,
-               "exact_gap_pct": exact_gap}
-        cost = time.process_time() - c0
-        self.eval_cpu += cost
-        # what the next point will cost: this one's, less an exact evaluation that will not be
-        # tried again (one that ran out of states can take seconds, and counting it again kept
-        # later points out of the CPU share for the rest of a run)
-        self._point_cpu = sim_cpu if self._exact_too_big else cost
-        row["eval_cpu_seconds"] = max(round(cost, 4), 1e-4)  # > 0: marks a point (not the final measurement)
-        self.rows.append(row)
-        # the best point is chosen on the exact cost when every point has one (no selection noise)
-        key = exact if exact is not None and self._all_exact else est.cost
-        if exact is None:
+               "cost": cost, "ci_halfwidth": 0.0 if est is None else float(est.ci_halfwidth), "gap_pct": gap,
+               "exact_cost": exact, "exact_gap_pct": exact_gap}
+        if est is None:
+            key = exact
+        else:
+            if self._all_exact and self.best is not None:  # the first point without an exact cost:
+                self.best = (float(self.simulated(self.best[1]).cost), self.best[1])  # the best so far, simulated
             self._all_exact = False
+            key = float(est.cost)
+        cpu = time.process_time() - c0
+        self.eval_cpu += cpu
+        # what the next point will cost: this one's while exact evaluations succeed; once one has
+        # failed (it can take seconds, and is not tried again) about one simulation
+        self._point_cpu = cpu if est is None else sim_cpu
+        row["eval_cpu_seconds"] = max(round(cpu, 4), 1e-4)  # > 0: marks a point (not the final measurement)
+        self.rows.append(row)
         if self.best is None or key < self.best[0]:
             self.best = (key, policy)
-        self.bar.set_postfix(cost=f"{est.cost:.3f}", **({"gap": f"{gap:.2f}%"} if gap is not None else {}))
+        self.bar.set_postfix(cost=f"{cost:.3f}", **({"gap": f"{gap:.2f}%"} if gap is not None else {}))
         if self.out is not None:
             self._write_curve()
         if self._tb is not None:
-            self._tb.add_scalar("eval/cost", est.cost, step)
+            self._tb.add_scalar("eval/cost", cost, step)
             if gap is not None:
                 self._tb.add_scalar("eval/gap_pct", gap, step)
         return row
@@ -209,6 +236,7 @@ class TrainingMonitor:
     _all_exact = True
     _exact_too_big = False
     _point_cpu = 0.0
+    last_simulated: float | None = None  # the last point's simulated cost (None: it had only an exact one)
 
     def _exact(self, policy: Any) -> float | None:
         """Exact cost of the point when the policy's chain is small enough; None otherwise.
@@ -225,7 +253,8 @@ class TrainingMonitor:
             return None
         from invbench.envs.errors import BudgetError
         try:
-            return float(evaluate_exact(self.spec, policy, max_states=self.settings.curve_exact_max_states).cost)
+            return float(evaluate_exact(self.spec, policy, max_states=self.settings.curve_exact_max_states,
+                                        max_work=CURVE_EXACT_WORK).cost)
         except BudgetError:
             self._exact_too_big = True
             return None

@@ -21,7 +21,7 @@ from typing import Any
 
 import torch.nn.functional as torch_functional
 
-TD_LOSSES = ("squared", "huber")
+from .settings import TD_LOSSES
 
 
 class _SquaredInsteadOfHuber(types.ModuleType):

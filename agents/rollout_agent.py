@@ -243,9 +243,9 @@ def run_rollout_agent(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, 
     horizon = 8 * (lead + 1) + 16 if s.horizon == AUTO else int(s.horizon)
     cap = 10**6 if s.iterations == AUTO else int(s.iterations)
     act, start = first_policy(spec, s, scaling, seed, monitor)
-    judge = Judge()
+    judge = Judge(monitor.simulated_cost)
     if start.get("policy") is not None:
-        judge.offer("classical", start["policy"], monitor.record(0, start["policy"]))
+        judge.offer("classical", start["policy"], monitor.record(0, start["policy"]), monitor.last_simulated)
     states, done = sample_states(spec, act, s, rng)
     scaling = widen_for(spec, scaling, act, states, s)
     head = "logits" if s.fit == "classify" else "q_values"
@@ -295,7 +295,7 @@ def run_rollout_agent(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, 
                                meta={"iteration": it, "train_accuracy": acc})
         final, act = policy, policy.act
         monitor.advance(done, lambda p=policy: p, force=True)
-        judge.offer(f"round {it}", policy, monitor.rows[-1])
+        judge.offer(f"round {it}", policy, monitor.rows[-1], monitor.last_simulated)
         last_cpu = monitor.cpu_seconds() - c0
     best = judge.best.policy if judge.best is not None else final
     label = judge.best.label if judge.best is not None else "final"

@@ -3,16 +3,17 @@
 Candidates are the starting classical policy and the policy of every round. Each is judged on
 its learning-curve point (`TrainingMonitor.record`), which is independent of the rollouts that
 trained it: the exact long-run cost when the policy's reachable chain is small enough
-(`baselines/policy_eval.py`), and always a simulation on the curve's own common random numbers
+(`baselines/policy_eval.py`), else a simulation on the curve's own common random numbers
 (`eval_seed`, never the training seed). Two candidates are compared exactly when both have an
-exact cost, else on that simulation. The best so far is kept, so the result is never worse
-than the starting policy on this judge; when the start stays best, it is what training returns.
+exact cost, else on that simulation (run then for a candidate that had only its exact cost).
+The best so far is kept, so the result is never worse than the starting policy on this judge;
+when the start stays best, it is what training returns.
 """
 from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
@@ -26,27 +27,34 @@ class Candidate:
     label: str  # "classical" or "round N"
     policy: Any = field(repr=False)
     exact: float | None
-    simulated: float
-
-    def beats(self, other: "Candidate") -> bool:
-        if self.exact is not None and other.exact is not None:
-            return self.exact < other.exact - 1e-12 * max(1.0, abs(other.exact))
-        return self.simulated < other.simulated
+    simulated: float | None  # None until a comparison needs it (the point had an exact cost)
 
 
 class Judge:
-    """Keeps the best candidate seen; `offer` takes the learning-curve row of the candidate."""
+    """Keeps the best candidate seen; `offer` takes the candidate's learning-curve row and its
+    simulated cost; `simulate(policy)` gives a simulated cost when a comparison needs one."""
 
-    def __init__(self) -> None:
+    def __init__(self, simulate: Callable[[Any], float]) -> None:
+        self.simulate = simulate
         self.best: Candidate | None = None
         self.history: list[dict[str, Any]] = []
 
-    def offer(self, label: str, policy: Any, row: dict[str, Any]) -> bool:
-        c = Candidate(label, policy, row.get("exact_cost"), float(row["cost"]))
-        won = self.best is None or c.beats(self.best)
+    def _simulated(self, c: Candidate) -> float:
+        if c.simulated is None:
+            c.simulated = float(self.simulate(c.policy))
+        return c.simulated
+
+    def beats(self, a: Candidate, b: Candidate) -> bool:
+        if a.exact is not None and b.exact is not None:
+            return a.exact < b.exact - 1e-12 * max(1.0, abs(b.exact))
+        return self._simulated(a) < self._simulated(b)
+
+    def offer(self, label: str, policy: Any, row: dict[str, Any], simulated: float | None) -> bool:
+        c = Candidate(label, policy, row.get("exact_cost"), simulated)
+        won = self.best is None or self.beats(c, self.best)
         if won:
             self.best = c
-        self.history.append({"label": label, "exact_cost": c.exact, "cost": c.simulated, "best": won})
+        self.history.append({"label": label, "exact_cost": c.exact, "cost": row["cost"], "best": won})
         return won
 
 

@@ -16,6 +16,8 @@ from invbench.envs.errors import SpecError
 
 AUTO = "auto"
 SB3_AGENTS = ("ppo", "a2c", "dqn")
+#: Losses DQN can fit its Q-values with (agents/dqn_loss.py applies them).
+TD_LOSSES = ("squared", "huber")
 
 
 def setting(default: Any, kind: str, doc: str, lo: float | None = None, hi: float | None = None,
@@ -74,7 +76,7 @@ class SB3Settings(CommonSettings):
     target_update_interval: int = setting(2_000, "int", "steps between target-network updates", 1, 10**9, agents=("dqn",))
     train_freq: int = setting(4, "int", "env steps (per copy) between updates", 1, 10**6, agents=("dqn",))
     gradient_steps: int = setting(4, "int", "gradient steps per update", 1, 10**4, agents=("dqn",))
-    td_loss: str = setting("squared", "str", "loss on the TD error: squared (estimates the expected cost) or huber (SB3's own)", choices=("squared", "huber"), agents=("dqn",))
+    td_loss: str = setting("squared", "str", "loss on the TD error: squared (estimates the expected cost) or huber (SB3's own)", choices=TD_LOSSES, agents=("dqn",))
     lr_final_share: float = setting(0.0, "float", "learning rate at the end of the run as a share of learning_rate (linear decay over the run, counted in CPU when the CPU budget ends it)", 0.0, 1.0, agents=("dqn",))
 
 
