@@ -16,12 +16,18 @@ from invbench.envs import paths
 from invbench.envs.errors import SpecError
 
 
+def _num(v: float) -> str:
+    # An integer bound is printed whole: `:g` would round 2**32 - 1 to 4.29497e+09, which reads
+    # as a different limit.
+    return str(v) if isinstance(v, int) else f"{v:g}"
+
+
 def _range(lo: float | None, hi: float | None, lo_open: bool = False, hi_open: bool = False) -> str:
     if lo is not None and hi is not None:
-        return f"in {'(' if lo_open else '['}{lo:g}, {hi:g}{')' if hi_open else ']'}"
+        return f"in {'(' if lo_open else '['}{_num(lo)}, {_num(hi)}{')' if hi_open else ']'}"
     if lo is not None:
-        return f"{'>' if lo_open else '>='} {lo:g}"
-    return "a number" if hi is None else f"<= {hi:g}"
+        return f"{'>' if lo_open else '>='} {_num(lo)}"
+    return "a number" if hi is None else f"<= {_num(hi)}"
 
 
 def integer(lo: int, hi: int | None = None) -> Callable[[str], int]:

@@ -62,6 +62,8 @@ CASES: dict[str, tuple[str | bytes, list[str], tuple[str, ...]]] = {
     "cpu cap nan": (GOOD, ["train", "--max-cpu-seconds", "nan"], ("--max-cpu-seconds", ">= 0")),
     "steps fraction": (GOOD, ["train", "--steps", "1.5"], ("--steps", "integer >= 1")),
     "seed negative": (GOOD, ["evaluate", "--policy", "base_stock", "--seed", "-1"], ("--seed", "integer in [0,")),
+    # the upper bound printed whole, not rounded by a float format (4.29497e+09)
+    "seed too large": (GOOD, ["train", "--seed", "4294967296"], ("--seed", "integer in [0, 4294967295]")),
     "replications text": (GOOD, ["evaluate", "--policy", "base_stock", "--replications", "many"],
                           ("--replications", "integer >= 2")),
     "period cap inf": (GOOD, ["evaluate", "--policy", "base_stock", "--max-period-steps", "inf"], ("--max-period-steps",)),
