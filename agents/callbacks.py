@@ -235,17 +235,30 @@ class TrainingMonitor:
 
     _all_exact = True
     _exact_too_big = False
+    _confirm_too_big = False
     _point_cpu = 0.0
     last_simulated: float | None = None  # the last point's simulated cost (None: it had only an exact one)
 
-    def _exact(self, policy: Any) -> float | None:
+    def confirm_exact(self, policy: Any) -> float | None:
+        """Exact cost for the rollout agent's judge, which asks on a win by simulation alone (see
+        `rollout_judge.Judge.beats`), also after the curve has stopped exact evaluations: one
+        large chain says nothing of the next. After one refusal it is not tried again (a refusal
+        can take seconds). Its CPU counts as the curve's."""
+        c0 = time.process_time()
+        with one_torch_thread():
+            cost = self._exact(policy, "_confirm_too_big")
+        self.eval_cpu += time.process_time() - c0
+        return cost
+
+    def _exact(self, policy: Any, refused: str = "_exact_too_big") -> float | None:
         """Exact cost of the point when the policy's chain is small enough; None otherwise.
 
         After one point's chain has exceeded the state budget, later points are simulated only:
         finding that out again costs seconds each time (a three-stage serial chain: about 10 s
         to reach 200,000 states), and the best point is then chosen on the simulation anyway.
+        `refused` names the flag that remembers a refusal (the judge's confirmations keep their own).
         """
-        if not self.settings.curve_exact or self._exact_too_big:
+        if not self.settings.curve_exact or getattr(self, refused):
             return None
         try:
             from invbench.baselines.policy_eval import evaluate_exact
@@ -256,7 +269,7 @@ class TrainingMonitor:
             return float(evaluate_exact(self.spec, policy, max_states=self.settings.curve_exact_max_states,
                                         max_work=CURVE_EXACT_WORK).cost)
         except BudgetError:
-            self._exact_too_big = True
+            setattr(self, refused, True)
             return None
 
     def _write_curve(self) -> None:

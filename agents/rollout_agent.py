@@ -243,7 +243,7 @@ def run_rollout_agent(spec: InstanceSpec, s: RolloutSettings, scaling: Scaling, 
     horizon = 8 * (lead + 1) + 16 if s.horizon == AUTO else int(s.horizon)
     cap = 10**6 if s.iterations == AUTO else int(s.iterations)
     act, start = first_policy(spec, s, scaling, seed, monitor)
-    judge = Judge(monitor.simulated_cost)
+    judge = Judge(monitor.simulated_cost, monitor.confirm_exact)
     if start.get("policy") is not None:
         judge.offer("classical", start["policy"], monitor.record(0, start["policy"]), monitor.last_simulated)
     states, done = sample_states(spec, act, s, rng)

@@ -122,3 +122,26 @@ def test_judge_simulates_an_exact_only_candidate_when_compared_with_a_simulated_
     assert sims == ["a"]  # the incumbent simulated once, then kept
     assert not judge.offer("round 3", "d", {"exact_cost": None, "cost": 5.5}, 5.5)
     assert sims == ["a"] and judge.best.label == "classical"
+
+
+def test_judge_confirms_a_win_on_the_simulation_alone_exactly():
+    # The least of many noisy simulations is biased low (the winner's curse; common practice),
+    # so a simulated win is checked on the exact costs where both chains allow one.
+    exact_asked = []
+    exact = {"start": 5.0, "b": 5.05, "c": None, "d": None}  # the chains of c and d too large: refused
+
+    def confirm(policy):
+        exact_asked.append(policy)
+        return exact[policy]
+
+    judge = Judge(lambda p: {"start": 5.1, "b": 4.9, "c": 4.8, "d": 4.7}[p], confirm)
+    judge.offer("classical", "start", {"exact_cost": 5.0, "cost": 5.0}, None)
+    assert not judge.offer("round 1", "b", {"exact_cost": None, "cost": 4.9}, 4.9)  # exactly 1 % worse
+    assert judge.best.label == "classical" and exact_asked == ["b"]
+    assert judge.history[-1]["exact_cost"] == 5.05
+    assert judge.offer("round 2", "c", {"exact_cost": None, "cost": 4.8}, 4.8)  # no exact cost: simulation decides
+    assert exact_asked == ["b", "c"]
+    assert judge.offer("round 3", "d", {"exact_cost": None, "cost": 4.7}, 4.7)
+    assert exact_asked == ["b", "c", "d"]  # c's confirmation is not tried again
+    assert not judge.offer("round 4", "b", {"exact_cost": None, "cost": 4.9}, 4.9)  # a simulated loss: no confirmation
+    assert exact_asked == ["b", "c", "d"]
