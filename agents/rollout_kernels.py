@@ -35,6 +35,7 @@ from . import forward
 MEMO, MEMO_MAX = 1 << 12, 1 << 20
 #: environment switch forcing the numpy path (for comparisons)
 NUMPY_ENV = "INVBENCH_ROLLOUT_NUMPY"
+NO_FLOOR = -(1 << 62)  # the kernel's "no position floor" (Scaling.position_floor None)
 
 
 _HASH: list[Any] = []
@@ -61,7 +62,7 @@ def _build(period: Callable[..., None], key: int) -> Any:
 
     def run(state0, srow, first, has_first, D, ucol, keep0, every, kept, total, ip, fp, mode,
             W, level, reorder, cap, pack, ref, coef, seq, params, sizes, heads, scale, activation, buf,
-            units, poscap, case, memo0, memo_max, work, bs, ba, bn, bc, bf, hidx):  # pragma: no cover
+            units, poscap, posfloor, case, memo0, memo_max, work, bs, ba, bn, bc, bf, hidx):  # pragma: no cover
         if key == 0 or fkey == 0:  # never true: they only key numba's disk cache (envs/models/compiled.py)
             return
         R = srow.shape[0]
@@ -125,6 +126,13 @@ def _build(period: Callable[..., None], key: int) -> Any:
                                 p += s[i]
                             room = max(poscap - p, 0)
                             a[0] = min(a[0], (room // case) * case)
+                        if posfloor > NO_FLOOR:  # Scaling.orders: one slot, the position floor
+                            p = 0
+                            for i in range(n):
+                                p += s[i]
+                            lift = -((p - posfloor) // case) * case
+                            if lift > a[0]:
+                                a[0] = min(lift, units[0, units.shape[1] - 1])
                         if held * 2 < mask:  # at most half full, so probes stay short
                             mt[slot, 0] = 1
                             held += 1
@@ -164,6 +172,7 @@ class KernelPolicy:
     net: forward.NetArrays | None = None
     units: np.ndarray | None = None  # int64 [k, widest head]: units of each head's index
     poscap: int = 0
+    posfloor: int = NO_FLOOR
     case: int = 1
 
 
@@ -209,8 +218,9 @@ def kernel_policy(act: Any, spec: Any) -> KernelPolicy | None:
             units[j, :sc.slot_counts[j]] = sc.slot_units(j)
         if sc.n_slots != k:
             return None
+        floor = NO_FLOOR if sc.position_floor is None or sc.n_slots > 1 else int(sc.position_floor)
         return KernelPolicy(1, _dummy_linear(k, n), owner.arrays(), units,
-                            int(sc.position_cap) if sc.n_slots == 1 else 0, int(sc.case_pack))
+                            int(sc.position_cap) if sc.n_slots == 1 else 0, floor, int(sc.case_pack))
     lin = linear_orders(owner, spec)
     return None if lin is None else KernelPolicy(0, lin)
 
@@ -248,7 +258,7 @@ def _run(run: Any, p: Any, pol: KernelPolicy, spec: Any, state0: np.ndarray, sro
     run(np.ascontiguousarray(state0, dtype=np.int64), srow, first, len(first) > 0, D, ucol, keep0, every, kept,
         total, p.ints, p.floats, pol.mode, lin.weights, lin.level, lin.reorder, lin.cap,
         lin.pack, lin.ref, lin.coef, lin.sequence, net.params, net.sizes, net.heads, net.scale, net.activation,
-        net.scratch(), units, pol.poscap, pol.case,
+        net.scratch(), units, pol.poscap, pol.posfloor, pol.case,
         np.zeros((memo, 1 + n + k), dtype=np.int64), MEMO_MAX,
         np.empty(max(p.work, 1), dtype=np.int64), np.empty(n, dtype=np.int64), np.zeros(k, dtype=np.int64),
         np.empty(n, dtype=np.int64), np.empty(len(rules.costs)), np.empty(len(rules.flows), dtype=np.int64),

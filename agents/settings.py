@@ -41,6 +41,7 @@ class CommonSettings:
     reward_offset: Any = setting(AUTO, "float", "cost subtracted before scaling (auto: reference cost)", None, None, auto=True)
     max_order_units: Any = setting(AUTO, "int", "largest order the agent may place (auto: demand quantile)", 1, None, auto=True)
     position_cap: Any = setting(AUTO, "int", "largest inventory position after ordering (auto: from the instance, 0: none)", 0, None, auto=True)
+    position_floor: bool = setting(False, "bool", "keep the inventory position after ordering at or above an automatic floor where unmet demand is backordered (a margin below the optimal policy's lowest; DQN: on by default)", agents=("dqn",))
     order_quantile: float = setting(0.9999, "float", "demand quantile giving the automatic order bound", 0.5, 1.0, True)
     episode_length: int = setting(500, "int", "periods per training episode", 1, 10**7)
     eval_every: Any = setting(AUTO, "int", "training steps between learning-curve points (auto: at policy updates, up to 20, within 10 % of the training CPU)", 1, None, auto=True)
@@ -84,7 +85,7 @@ class SB3Settings(CommonSettings):
 AGENT_DEFAULTS: dict[str, dict[str, Any]] = {
     "ppo": dict(n_envs=64, learning_rate=3e-4, n_steps=64, gae_lambda=0.95),
     "a2c": dict(n_envs=64, learning_rate=7e-4, n_steps=8, gae_lambda=1.0),
-    "dqn": dict(n_envs=16, learning_rate=1e-4, hidden=(64, 64), activation="relu"),
+    "dqn": dict(n_envs=16, learning_rate=1e-4, hidden=(64, 64), activation="relu", position_floor=True),
 }
 
 S = TypeVar("S", bound=CommonSettings)

@@ -87,8 +87,8 @@ class InventorySB3VecEnv(VecEnv):
             raise RuntimeError("step_wait called without step_async")
         if actions.min() < 0 or np.any(actions.reshape(self.num_envs, self.k) >= self._nvec):
             raise ValueError(f"actions: must be integers in {', '.join(f'[0, {c - 1}]' for c in self._nvec)}")
-        if self.scaling is not None and self.scaling.position_cap > 0:
-            # the cap is part of the action's meaning: same rule as LearnedPolicy.act
+        if self.scaling is not None and (self.scaling.position_cap > 0 or self.scaling.position_floor is not None):
+            # the cap and the floor are part of the action's meaning: same rule as LearnedPolicy.act
             actions = self.scaling.orders(self._raw, actions) // self.scaling.case_pack
         raw, neg_cost, terminated, truncated, info = self.inner.step(actions)
         self._raw = raw

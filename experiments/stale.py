@@ -70,14 +70,37 @@ def settings_changes(recorded: Mapping[str, Any], today: Mapping[str, Any],
     return out
 
 
-def recorded_settings(root: Path, cell_id: str) -> dict[str, Any] | None:
-    """The settings in `agents/ID/train.json`, or None when there is no readable record."""
+def recorded_run(root: Path, cell_id: str) -> tuple[dict[str, Any], dict[str, Any]] | None:
+    """The settings and the resolved scaling in `agents/ID/train.json` (scaling {} when not
+    recorded), or None when there is no readable record of the settings."""
     try:
         data = json.loads((root / "agents" / cell_id / "train.json").read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None
     settings = data.get("settings") if isinstance(data, dict) else None
-    return settings if isinstance(settings, dict) else None
+    if not isinstance(settings, dict):
+        return None
+    scaling = data.get("scaling")
+    return settings, scaling if isinstance(scaling, dict) else {}
+
+
+def same_floor(spec: Any, today: Any, scaling: Mapping[str, Any]) -> bool:
+    """Whether today's `position_floor` setting gives the floor the cell trained with.
+
+    Why: the setting acts on training only through the floor it resolves to for the instance,
+    and that is none wherever unmet demand is lost (`agents/scaling.position_floor_for`), so a
+    cell trained before the setting existed is stale only where a floor now applies."""
+    from invbench.agents.scaling import resolved_floor
+
+    try:
+        cap = int(scaling.get("position_cap", 0))
+    except (TypeError, ValueError):
+        return False
+    return resolved_floor(spec, bool(today), cap) == scaling.get("position_floor")
+
+
+#: settings judged by their effect on the instance rather than their value (see `same_floor`)
+EFFECT_CHECKS: dict[str, Callable[[Any, Any, Mapping[str, Any]], bool]] = {"position_floor": same_floor}
 
 
 def find_stale(cells: Iterable[Any], done: Mapping[str, Any], root: str | Path) -> list[StaleCell]:
@@ -90,9 +113,10 @@ def find_stale(cells: Iterable[Any], done: Mapping[str, Any], root: str | Path) 
     for c in cells:
         if c.policy.kind != "agent" or c.cell_id not in done:
             continue
-        recorded = recorded_settings(root, c.cell_id)
-        if recorded is None:
+        run = recorded_run(root, c.cell_id)
+        if run is None:
             continue
+        recorded, scaling = run
         entry = c.policy.to_dict()
         key = _canon(entry)
         if key not in today:
@@ -103,6 +127,9 @@ def find_stale(cells: Iterable[Any], done: Mapping[str, Any], root: str | Path) 
         if today[key] is None:
             continue
         changes = settings_changes(recorded, *today[key])
+        for name in [k for k in changes if k in EFFECT_CHECKS]:
+            if EFFECT_CHECKS[name](c.instance, changes[name][1], scaling):
+                del changes[name]
         if changes:
             out.append(StaleCell(c.cell_id, c.policy.label, c.policy.agent, changes))
     return out

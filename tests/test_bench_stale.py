@@ -72,6 +72,29 @@ def test_other_agents_settings_and_unjudgeable_cells_are_left_alone(tmp_path):
     assert find_stale([cell], {cell.cell_id: {}}, tmp_path) == []
 
 
+def test_a_new_floor_setting_makes_cells_stale_only_where_a_floor_applies(tmp_path):
+    """DQN's position floor acts only through the floor it resolves to: none under lost sales
+    (agents/scaling.position_floor_for), so cells trained before the setting existed stay done
+    there, while a backorder cell, which would now train with a floor, is stale."""
+    from invbench.agents.scaling import position_floor_for
+    insts = [instance("ls-L1", "lost_sales", L=1, mean=2.0, p=4.0), instance("bo-L1", "backorder", L=1)]
+    suite = load_suite(write_suite(tmp_path / "s.toml", insts, [{"agent": "dqn", "steps": 100}], [0], name="stale"))
+    cells = {c.instance_name: c for c in suite.cells()}
+    today, _ = today_settings(cells["ls-L1"].policy.to_dict())
+    assert today["position_floor"] is True
+    old = {k: v for k, v in today.items() if k != "position_floor"}
+    done = {}
+    for c in cells.values():  # recorded as before the floor: no setting, no floor in the scaling
+        d = tmp_path / "agents" / c.cell_id
+        d.mkdir(parents=True)
+        (d / "train.json").write_text(json.dumps({"settings": old, "scaling": {"position_cap": 30}}))
+        done[c.cell_id] = {"kind": "agent", "status": "ok"}
+    stale = find_stale(list(cells.values()), done, tmp_path)
+    assert position_floor_for(cells["bo-L1"].instance) is not None
+    assert [(s.label, s.changes) for s in stale] == [("dqn", {"position_floor": (ABSENT, True)})]
+    assert stale[0].cell_id == cells["bo-L1"].cell_id
+
+
 @pytest.mark.slow
 def test_bench_warns_keeps_and_reruns_on_request(tmp_path, monkeypatch, capsys):
     suite = _suite(tmp_path, [{"agent": "ppo", "steps": 256,

@@ -8,6 +8,8 @@ kept states exactly and the same Q values to 1e-9, and a training run the same p
 """
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 import pytest
 import torch
@@ -33,14 +35,19 @@ def _spec(model: str, **over):
 CASES = {
     "lost_sales": _spec("lost_sales", lead_time=3),
     "backorder_fixed_cost": _spec("backorder", lead_time=2, fixed_order_cost=5.0),
+    "backorder_position_floor": _spec("backorder", lead_time=2, fixed_order_cost=5.0),
     "perishable": _spec("perishable"),
     "dual_sourcing": _spec("dual_sourcing"),
     "serial": _spec("serial"),
 }
 
 
-def _net_policy(spec, seed: int = 0) -> LearnedPolicy:
-    scaling = scaling_for(spec, CommonSettings())
+#: a floor (DQN's, Scaling.position_floor) near the cap (18), so it binds often: the kernel must apply it too
+FLOORS = {"backorder_position_floor": 14}
+
+
+def _net_policy(spec, seed: int = 0, floor: int | None = None) -> LearnedPolicy:
+    scaling = dataclasses.replace(scaling_for(spec, CommonSettings()), position_floor=floor)
     torch.manual_seed(seed)
     arch = architecture(spec.state_dim, (16, 16), scaling.n_outputs, "tanh", "q_values",
                         scaling.slot_counts if scaling.n_slots > 1 else None)
@@ -75,7 +82,7 @@ def test_compiled_rollouts_equal_the_numpy_path(case, memo, monkeypatch):
         monkeypatch.setattr(rollout_kernels, "MEMO", memo[0])
         monkeypatch.setattr(rollout_kernels, "MEMO_MAX", memo[1])
     spec = CASES[case]
-    pol = _net_policy(spec)
+    pol = _net_policy(spec, floor=FLOORS.get(case))
     s = RolloutSettings(states_per_iteration=90, chains=7, state_warmup=13, state_spacing=3)
     assert rollout_kernels.kernel_policy(pol.act, spec) is not None  # else this would compare numpy with numpy
     st_on, st_off = _both(lambda: sample_states(spec, pol.act, s, np.random.default_rng(3)))
