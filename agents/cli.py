@@ -54,8 +54,7 @@ def run(args: argparse.Namespace) -> int:
     if not isinstance(agent, str) or agent not in AGENTS:
         raise SpecError(f"agent: must be one of {', '.join(AGENTS)}, got {agent!r}")
     if args.list_settings:
-        cls = type(resolve_settings(agent, None))
-        for name, default, doc in describe_settings(cls):
+        for name, default, doc in describe_settings(resolve_settings(agent, None), agent):
             print(f"{name:24s} {str(default):14s} {doc}")
         return 0
     steps = _int("steps", args.steps if args.steps is not None else table.get("steps", DEFAULT_STEPS), 1, 10**12)

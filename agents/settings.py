@@ -226,7 +226,12 @@ def to_jsonable(settings: CommonSettings) -> dict[str, Any]:
     return {k: (list(v) if isinstance(v, tuple) else v) for k, v in dataclasses.asdict(settings).items()}
 
 
-def describe_settings(cls: type) -> list[tuple[str, Any, str]]:
-    """(name, default, doc) of every setting, for --help and the README table."""
-    inst = cls()
-    return [(f.name, getattr(inst, f.name), f.metadata["doc"]) for f in dataclasses.fields(cls) if f.metadata]
+def describe_settings(settings: CommonSettings, agent: str) -> list[tuple[str, Any, str]]:
+    """(name, value, doc) of every setting `agent` uses, valued as in `settings` (for
+    `--list-settings`: the agent's own defaults, e.g. DQN's ReLU network, not the class's)."""
+    out = []
+    for f in dataclasses.fields(settings):
+        used_by = f.metadata.get("agents", ()) if f.metadata else ()
+        if f.metadata and (not used_by or agent in used_by):
+            out.append((f.name, getattr(settings, f.name), f.metadata["doc"]))
+    return out

@@ -72,3 +72,19 @@ def test_cli_agent_table_error_exit_2(tmp_path, capsys):
     p.write_text(SPEC + "\n[agent]\nent_coef = 2.0\n")
     assert main(["train", str(p)]) == 2
     assert "agent.ent_coef: must be in [0, 1]" in capsys.readouterr().err
+
+
+def test_list_settings_shows_the_agents_own_defaults_and_only_its_settings(tmp_path, capsys):
+    spec = tmp_path / "s.toml"
+    spec.write_text(SPEC)
+
+    def listed(agent: str) -> dict[str, str]:
+        assert main(["train", str(spec), "--agent", agent, "--list-settings"]) == 0
+        return {ln.split()[0]: ln.split()[1] for ln in capsys.readouterr().out.splitlines() if ln.strip()}
+
+    dqn, ppo, rollout = listed("dqn"), listed("ppo"), listed("rollout")
+    assert dqn["activation"] == "relu" and dqn["position_floor"] == "True" and dqn["td_loss"] == "squared"
+    assert "clip_range" not in dqn and "n_epochs" not in dqn  # PPO's
+    assert ppo["activation"] == "tanh" and ppo["n_steps"] == "64" and ppo["clip_range"] == "0.2"
+    assert "td_loss" not in ppo and "position_floor" not in ppo
+    assert "rollouts" in rollout and "td_loss" not in rollout and "position_floor" not in rollout
