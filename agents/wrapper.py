@@ -8,7 +8,8 @@ RL libraries do not rescale these by themselves. Wrapped, the env shows what our
 * observations: `state / mean demand - 1`, clipped to +-`obs_clip` (10 by default);
 * rewards: `-(cost - reference cost) / reference cost` (a crude order-up-to rule's cost);
 * actions: index i orders the i-th size 0, q, 2q, ... up to a high demand quantile, and the
-  order never lifts the inventory position above the instance's cap (one order slot); with
+  order never lifts the inventory position above the instance's cap (one order slot) nor, with
+  `position_floor` on (off by default; on in our DQN), leaves it below the backorder floor; with
   several slots, one index per slot into that slot's sizes (`MultiDiscrete`).
 
 `info` keeps the wrapped env's entries: `info["cost"]` is the unscaled cost of the period and
@@ -33,7 +34,7 @@ from .settings import CommonSettings, apply_overrides
 
 #: the settings that shape the scaling (the rest of `[agent]` is about training)
 SCALING_KEYS = ("obs_scale", "obs_clip", "reward_scale", "reward_offset", "max_order_units", "position_cap",
-                "order_quantile")
+                "position_floor", "order_quantile")
 
 
 def scaling_of(spec: InstanceSpec, settings: CommonSettings | Mapping[str, Any] | None = None) -> Scaling:
@@ -44,7 +45,9 @@ def scaling_of(spec: InstanceSpec, settings: CommonSettings | Mapping[str, Any] 
         other = sorted(set(settings or {}) - set(SCALING_KEYS))
         if other:
             raise SpecError(f"settings.{other[0]}: must be one of the scaling settings {', '.join(SCALING_KEYS)}")
-        settings = apply_overrides(CommonSettings(), settings, "ppo")
+        # validated as for DQN, the one agent of ours using every scaling key (position_floor);
+        # the wrapper serves any algorithm, and the floor stays off unless asked for
+        settings = apply_overrides(CommonSettings(), settings, "dqn")
     return scaling_for(spec, settings)
 
 
@@ -53,7 +56,8 @@ class ScaledEnv(gym.Wrapper, gym.utils.RecordConstructorArgs):
 
     env: an env made by `gymnasium.make("invbench/...")` (or a model's env class).
     settings: overrides of the scaling settings (`obs_scale`, `obs_clip`, `reward_scale`,
-    `reward_offset`, `max_order_units`, `position_cap`, `order_quantile`), as in `[agent]`.
+    `reward_offset`, `max_order_units`, `position_cap`, `position_floor`, `order_quantile`), as in
+    `[agent]`.
     scaling: a `Scaling` to use as is (e.g. a saved learned policy's), instead of deriving one.
     """
 

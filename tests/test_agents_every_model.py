@@ -105,6 +105,23 @@ def test_scaled_env_refuses_other_envs_and_bad_actions():
         two.step([two.scaling.slot_counts[0], 0])
 
 
+def test_scaled_env_offers_the_backorder_floor_when_asked():
+    """Off by default; on, ordering nothing at a backlog lifts the position to the floor
+    (agents/scaling.position_floor_for; tests/test_agents_position_floor.py checks the level)."""
+    spec = {"model": "backorder", "lead_time": 1, "holding_cost": 1.0, "shortage_cost": 9.0, "fixed_order_cost": 40.0,
+            "demand": {"distribution": "poisson", "mean": 4.0}}
+    plain = ScaledEnv(gym.make("invbench/Backorder-v0", spec=spec))
+    floored = ScaledEnv(gym.make("invbench/Backorder-v0", spec=spec), settings={"position_floor": True})
+    assert plain.scaling.position_floor is None and floored.scaling.position_floor is not None
+    floor = floored.scaling.position_floor
+    backlog = np.full((1, plain.instance.state_dim), 0.0)
+    backlog[0, 0] = floor - 7  # seven units below the floor, nothing in transit
+    plain._raw = floored._raw = backlog
+    assert plain.inner_action(0) == 0 and floored.inner_action(0) == 7
+    with pytest.raises(SpecError, match=r"agent\.position_floor: must be"):
+        ScaledEnv(gym.make("invbench/Backorder-v0", spec=spec), settings={"position_floor": "sometimes"})
+
+
 def test_scaled_env_is_exported_from_the_package():
     assert invbench.ScaledEnv is ScaledEnv
 
