@@ -37,37 +37,45 @@ def available_mb() -> float:
 MEMORY_BUDGET_MB = 0.8 * available_mb()
 
 
+_BASE = {"holding_cost": 1.0, "shortage_cost": 9.0, "demand": {"distribution": "poisson", "mean": 5.0}}
+
+#: model -> builder of the instance of size `size` in its series (Poisson mean 5, h = 1, p = 9)
+_BUILDERS = {
+    "lost_sales": lambda size: classic_spec(size, 9),
+    # shelf life m, lead time 1, FIFO, outdating cost 3
+    "perishable": lambda size: load_spec({"model": "perishable", "lead_time": 1, "shelf_life": size,
+                                          "outdating_cost": 3.0, **_BASE}),
+    # N stages, lead time 1 each, holding cost falling upstream
+    "serial": lambda size: load_spec({"model": "serial", "lead_times": [1] * size, "shortage_cost": 9.0,
+                                      "holding_costs": [1.0 / 2**i for i in range(size)],
+                                      "demand": _BASE["demand"]}),
+    "backorder": lambda size: load_spec({"model": "backorder", "lead_time": size, **_BASE}),
+}
+
+
 def instance(model: str, size: int):
     """The instance of size `size` in each series (Poisson mean 5, h = 1, p = 9)."""
-    base = {"holding_cost": 1.0, "shortage_cost": 9.0, "demand": {"distribution": "poisson", "mean": 5.0}}
-    if model == "lost_sales":
-        return classic_spec(size, 9)
-    if model == "perishable":  # shelf life m, lead time 1, FIFO, outdating cost 3
-        return load_spec({"model": "perishable", "lead_time": 1, "shelf_life": size, "outdating_cost": 3.0, **base})
-    if model == "serial":  # N stages, lead time 1 each, holding cost falling upstream
-        return load_spec({"model": "serial", "lead_times": [1] * size, "shortage_cost": 9.0,
-                          "holding_costs": [1.0 / 2**i for i in range(size)], "demand": base["demand"]})
-    return load_spec({"model": "backorder", "lead_time": size, **base})
+    return _BUILDERS[model](size)
 
 
-#: (title, model, sizes, solve keywords, label of the size)
+#: (title, model, sizes, solve keywords, label of the size, sizes skipped unless --with-l6 (minutes))
 SERIES = [
-    ("lost sales (matrix-free)", "lost_sales", range(1, 8), {}, "L"),
-    ("backorders, inventory-position state (matrix-free)", "backorder", (1, 2, 4, 8, 16), {}, "L"),
-    ("backorders, full pipeline state (matrix-free)", "backorder", range(1, 5), {"full_pipeline": True}, "L"),
-    ("perishable, lead time 1 (transition matrix)", "perishable", range(2, 8), {}, "m"),
-    ("serial chain (Clark-Scarf decomposition)", "serial", range(2, 7), {}, "N"),
+    ("lost sales (matrix-free)", "lost_sales", range(1, 8), {}, "L", {6}),
+    ("backorders, inventory-position state (matrix-free)", "backorder", (1, 2, 4, 8, 16), {}, "L", set()),
+    ("backorders, full pipeline state (matrix-free)", "backorder", range(1, 5), {"full_pipeline": True}, "L", set()),
+    ("perishable, lead time 1 (transition matrix)", "perishable", range(2, 8), {}, "m", set()),
+    ("serial chain (Clark-Scarf decomposition)", "serial", range(2, 7), {}, "N", set()),
 ]
 
 
 def solver_tables(with_l6: bool) -> None:
     print(f"solver, Poisson mean 5, h = 1, p = 9; memory budget {MEMORY_BUDGET_MB:,.0f} MiB (80% of MemAvailable); "
           "peak = Python-heap peak (tracemalloc) inside the solve")
-    for title, model, sizes, kw, label in SERIES:
+    for title, model, sizes, kw, label, slow in SERIES:
         print(title)
         print(f"  {label:>2} {'states':>11} {'pairs':>12} {'iters':>5} {'seconds':>8} {'peak MiB':>8} {'cost':>9}")
         for size in sizes:
-            if model == "lost_sales" and size == 6 and not with_l6:
+            if size in slow and not with_l6:
                 print(f"  {size:>2} skipped (minutes; run with --with-l6)")
                 continue
             spec = instance(model, size)
