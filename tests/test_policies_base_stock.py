@@ -23,6 +23,15 @@ def test_backorder_analytic_cost_equals_exact_evaluation(L, q):
         assert evaluate_exact(spec, BaseStockPolicy(spec, pol.S + d)).cost > ev.cost
 
 
+def test_lead_time_cost_refuses_lost_sales():
+    # G(y) exists only when unmet demand is carried over (common practice: with lost sales the
+    # cost at t + L depends on the whole pipeline, not on the position alone).
+    from invbench.envs.models.backorder.lead_time_cost import lead_time_cost
+    spec = InstanceSpec("lost_sales", poisson(4.0), lead_time=1, holding_cost=1.0, shortage_cost=9.0)
+    with pytest.raises(ValueError, match="backorder unmet demand"):
+        lead_time_cost(spec, np.arange(5))
+
+
 @pytest.mark.parametrize("L", [0, 2])
 def test_lost_sales_search_finds_exhaustive_best(L):
     # Common practice: the lost-sales base-stock cost is unimodal in S, so the local search from

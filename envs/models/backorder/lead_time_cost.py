@@ -22,8 +22,10 @@ if TYPE_CHECKING:
 
 def lead_time_cost(spec: "InstanceSpec", levels: np.ndarray) -> np.ndarray:
     """G(y) for each inventory position y in `levels` (backorder model), per period."""
-    if spec.model != "backorder":
-        raise ValueError("lead_time_cost: defined for the backorder model")
+    # G(y) needs unmet demand carried over: the model must be its own backorder twin (as in
+    # agents.scaling's position floor), else the cost of t + L is not a function of y alone.
+    if spec.model_def.backorder_twin(spec) is not spec:
+        raise ValueError("lead_time_cost: defined for models that backorder unmet demand")
     levels = np.asarray(levels, dtype=np.int64).reshape(-1)
     pmf = lead_time_demand_pmf(spec).normalized()  # mixed over L when the lead time is random
     once = spec.with_(lead_time=0, unit_order_cost=0.0, fixed_order_cost=0.0)
